@@ -1,0 +1,124 @@
+#include "plaudit/audit/trajectory.h"
+
+#include <algorithm>
+#include <atomic>
+#include <cmath>
+#include <exception>
+#include <thread>
+
+#include "plaudit/core/error.h"
+#include "plaudit/model/evaluate.h"
+
+namespace plaudit::audit {
+namespace {
+
+// Everything one snapshot contributes; kept so frozen layers can be detected by comparison.
+struct SnapshotWork {
+  SnapshotPoint point;
+  std::vector<Eigen::MatrixXd> weights;
+};
+
+SnapshotWork EvaluateSnapshot(const io::RunDir& run, const io::SnapshotRef& ref, const model::Dataset* data,
+                              const TrajectoryOptions& options) {
+  const io::ArrayMap arrays = run.ReadSnapshot(ref);
+  const std::string file = ref.path.string();
+  model::Network net = model::NetworkFromArrays(run.manifest(), arrays, file);
+  SnapshotWork work;
+  work.point.step = ref.step;
+  work.point.finite = net.AllFinite();
+  work.point.grad.resize(static_cast<std::size_t>(net.depth()));
+  for (const auto& l : net.layers) work.weights.push_back(l.weight);
+  const int lowest = std::clamp(options.lowest_grad_layer, 0, net.depth() - 1);
+  if (data != nullptr) {
+    if (data->dim() != net.input_dim()) {
+      raise(ExitCode::kBadData, "{}: the first layer takes {} inputs but the audit data have {} columns", file,
+            net.input_dim(), data->dim());
+    }
+    model::EvalOptions eval;
+    eval.block_rows = options.block_rows;
+    eval.lowest_grad_layer = work.point.finite ? lowest : -1;
+    const model::Evaluation ev = model::Evaluate(net, *data, eval);
+    work.point.loss = ev.loss;
+    if (!work.point.finite) return work;
+    for (int l = lowest; l < net.depth(); ++l) {
+      work.point.grad[static_cast<std::size_t>(l)] =
+          ComputeGradientStats(ev.weight_grad[static_cast<std::size_t>(l)] * model::WeightGradScale(net, l));
+    }
+    return work;
+  }
+  // No data: gradients as the trainer saved them, already in the parameterization's scale.
+  work.point.loss = std::nan("");
+  work.point.grad_from_file = true;
+  for (int l = lowest; l < net.depth(); ++l) {
+    const auto& spec = run.manifest().layers[static_cast<std::size_t>(l)];
+    const auto it = arrays.find("grad/" + spec.weight);
+    if (it == arrays.end()) {
+      raise(ExitCode::kBadData, "{}: no audit data and no gradient array 'grad/{}' to judge layer {}", file,
+            spec.weight, l + 1);
+    }
+    Eigen::MatrixXd g = it->second.AsMatrix(file);
+    if (run.manifest().weight_layout == io::WeightLayout::kInOut) g.transposeInPlace();
+    if (g.rows() != net.layers[static_cast<std::size_t>(l)].fan_out() || g.cols() != net.layers[static_cast<std::size_t>(l)].fan_in()) {
+      raise(ExitCode::kBadData, "{}: gradient 'grad/{}' has shape {} unlike its weight", file, spec.weight,
+            it->second.ShapeString());
+    }
+    work.point.grad[static_cast<std::size_t>(l)] = ComputeGradientStats(g);
+  }
+  return work;
+}
+
+}  // namespace
+
+GradientStats ComputeGradientStats(const Eigen::MatrixXd& g) {
+  GradientStats s;
+  if (g.size() == 0) return s;
+  Eigen::ArrayXd mags = Eigen::Map<const Eigen::ArrayXd>(g.data(), g.size()).abs();
+  s.sup = mags.maxCoeff();
+  s.mean = mags.mean();
+  s.rms = std::sqrt(mags.square().mean());
+  std::vector<double> sorted(mags.data(), mags.data() + mags.size());
+  const std::size_t k = static_cast<std::size_t>(std::floor(0.99 * static_cast<double>(sorted.size() - 1)));
+  std::nth_element(sorted.begin(), sorted.begin() + static_cast<std::ptrdiff_t>(k), sorted.end());
+  s.p99 = sorted[k];
+  const Eigen::VectorXd row_norm = g.rowwise().norm();
+  s.neuron_sup = row_norm.maxCoeff();
+  s.neuron_mean = row_norm.mean();
+  return s;
+}
+
+Trajectory ComputeTrajectory(const io::RunDir& run, const std::vector<io::SnapshotRef>& snaps,
+                             const model::Dataset* data, const TrajectoryOptions& options) {
+  std::vector<SnapshotWork> work(snaps.size());
+  std::atomic<std::size_t> next{0};
+  std::exception_ptr failure;
+  std::atomic<bool> failed{false};
+  auto worker = [&] {
+    for (std::size_t i = next++; i < snaps.size() && !failed; i = next++) {
+      try {
+        work[i] = EvaluateSnapshot(run, snaps[i], data, options);
+      } catch (...) {
+        if (!failed.exchange(true)) failure = std::current_exception();
+      }
+    }
+  };
+  const int threads = std::max(1, std::min<int>(options.threads, static_cast<int>(snaps.size())));
+  std::vector<std::thread> pool;
+  for (int t = 1; t < threads; ++t) pool.emplace_back(worker);
+  worker();
+  for (auto& t : pool) t.join();
+  if (failure) std::rethrow_exception(failure);
+
+  Trajectory traj;
+  traj.lowest_grad_layer = options.lowest_grad_layer;
+  const std::size_t depth = run.manifest().layers.size();
+  traj.frozen.assign(depth, false);
+  for (std::size_t l = 0; l < depth; ++l) {
+    bool same = work.size() >= 2;
+    for (std::size_t i = 1; same && i < work.size(); ++i) same = work[i].weights[l] == work[0].weights[l];
+    traj.frozen[l] = !run.manifest().layers[l].trainable || same;
+  }
+  for (auto& w : work) traj.points.push_back(std::move(w.point));
+  return traj;
+}
+
+}  // namespace plaudit::audit
