@@ -12,22 +12,22 @@
 namespace plaudit::audit {
 namespace {
 
-// Everything one snapshot contributes; kept so frozen layers can be detected by comparison.
+// Everything one snapshot contributes; the network is kept so frozen layers can be detected.
 struct SnapshotWork {
   SnapshotPoint point;
-  std::vector<Eigen::MatrixXd> weights;
+  model::Network net;
 };
 
-SnapshotWork EvaluateSnapshot(const io::RunDir& run, const io::SnapshotRef& ref, const model::Dataset* data,
-                              const TrajectoryOptions& options) {
+SnapshotWork Work(const io::RunDir& run, const io::SnapshotRef& ref, const model::Dataset* data,
+                  const TrajectoryOptions& options) {
   const io::ArrayMap arrays = run.ReadSnapshot(ref);
   const std::string file = ref.path.string();
-  model::Network net = model::NetworkFromArrays(run.manifest(), arrays, file);
   SnapshotWork work;
+  work.net = model::NetworkFromArrays(run.manifest(), arrays, file);
+  const model::Network& net = work.net;
   work.point.step = ref.step;
   work.point.finite = net.AllFinite();
   work.point.grad.resize(static_cast<std::size_t>(net.depth()));
-  for (const auto& l : net.layers) work.weights.push_back(l.weight);
   const int lowest = std::clamp(options.lowest_grad_layer, 0, net.depth() - 1);
   if (data != nullptr) {
     if (data->dim() != net.input_dim()) {
@@ -69,6 +69,23 @@ SnapshotWork EvaluateSnapshot(const io::RunDir& run, const io::SnapshotRef& ref,
 
 }  // namespace
 
+SnapshotPoint EvaluateSnapshot(const io::RunDir& run, const io::SnapshotRef& ref, const model::Dataset* data,
+                               const TrajectoryOptions& options, model::Network* net_out) {
+  SnapshotWork work = Work(run, ref, data, options);
+  if (net_out != nullptr) *net_out = std::move(work.net);
+  return std::move(work.point);
+}
+
+std::vector<bool> FrozenLayers(const io::Manifest& manifest, const model::Network& first, const model::Network& now) {
+  std::vector<bool> frozen(manifest.layers.size(), false);
+  const bool compare = &first != &now;
+  for (std::size_t l = 0; l < frozen.size(); ++l) {
+    const bool same = compare && first.layers[l].weight == now.layers[l].weight && first.layers[l].bias == now.layers[l].bias;
+    frozen[l] = !manifest.layers[l].trainable || same;
+  }
+  return frozen;
+}
+
 GradientStats ComputeGradientStats(const Eigen::MatrixXd& g) {
   GradientStats s;
   if (g.size() == 0) return s;
@@ -88,14 +105,28 @@ GradientStats ComputeGradientStats(const Eigen::MatrixXd& g) {
 
 Trajectory ComputeTrajectory(const io::RunDir& run, const std::vector<io::SnapshotRef>& snaps,
                              const model::Dataset* data, const TrajectoryOptions& options) {
-  std::vector<SnapshotWork> work(snaps.size());
-  std::atomic<std::size_t> next{0};
+  Trajectory traj;
+  traj.lowest_grad_layer = options.lowest_grad_layer;
+  const io::Manifest& manifest = run.manifest();
+  traj.frozen.assign(manifest.layers.size(), false);
+  for (std::size_t l = 0; l < manifest.layers.size(); ++l) traj.frozen[l] = !manifest.layers[l].trainable;
+  if (snaps.empty()) return traj;
+
+  // Snapshot 0 is kept as the reference for "unchanged"; every other network is dropped as soon
+  // as it is compared, so memory holds at most one snapshot per thread.
+  SnapshotWork first = Work(run, snaps.front(), data, options);
+  std::vector<SnapshotPoint> points(snaps.size());
+  std::vector<std::vector<bool>> same(snaps.size());
+  points[0] = first.point;
+  std::atomic<std::size_t> next{1};
   std::exception_ptr failure;
   std::atomic<bool> failed{false};
   auto worker = [&] {
     for (std::size_t i = next++; i < snaps.size() && !failed; i = next++) {
       try {
-        work[i] = EvaluateSnapshot(run, snaps[i], data, options);
+        SnapshotWork w = Work(run, snaps[i], data, options);
+        same[i] = FrozenLayers(manifest, first.net, w.net);
+        points[i] = std::move(w.point);
       } catch (...) {
         if (!failed.exchange(true)) failure = std::current_exception();
       }
@@ -108,16 +139,14 @@ Trajectory ComputeTrajectory(const io::RunDir& run, const std::vector<io::Snapsh
   for (auto& t : pool) t.join();
   if (failure) std::rethrow_exception(failure);
 
-  Trajectory traj;
-  traj.lowest_grad_layer = options.lowest_grad_layer;
-  const std::size_t depth = run.manifest().layers.size();
-  traj.frozen.assign(depth, false);
-  for (std::size_t l = 0; l < depth; ++l) {
-    bool same = work.size() >= 2;
-    for (std::size_t i = 1; same && i < work.size(); ++i) same = work[i].weights[l] == work[0].weights[l];
-    traj.frozen[l] = !run.manifest().layers[l].trainable || same;
+  if (snaps.size() >= 2) {
+    for (std::size_t l = 0; l < traj.frozen.size(); ++l) {
+      bool unchanged = true;
+      for (std::size_t i = 1; i < snaps.size(); ++i) unchanged = unchanged && same[i][l];
+      traj.frozen[l] = traj.frozen[l] || unchanged;
+    }
   }
-  for (auto& w : work) traj.points.push_back(std::move(w.point));
+  traj.points = std::move(points);
   return traj;
 }
 

@@ -28,6 +28,7 @@ std::optional<ScalarRecord> ParseLine(const std::string& line, std::string& why)
   else if (loss->is_null()) r.loss = std::nan("");
   else if (loss->is_string() && (*loss == "NaN" || *loss == "nan")) r.loss = std::nan("");
   else if (loss->is_string() && (*loss == "Infinity" || *loss == "inf")) r.loss = INFINITY;
+  else if (loss->is_string() && (*loss == "-Infinity" || *loss == "-inf")) r.loss = -INFINITY;
   else { why = "has a 'loss' that is not a number"; return std::nullopt; }
   for (const auto& [key, value] : j.items()) {
     if (key != "step" && key != "loss" && value.is_number()) r.extra[key] = value.get<double>();
@@ -47,7 +48,7 @@ std::string QuoteNonFinite(const std::string& line) {
       for (const char* word : {"-Infinity", "Infinity", "NaN"}) {
         const std::size_t len = std::char_traits<char>::length(word);
         if (line.compare(i, len, word) == 0) {
-          out += word[0] == '-' ? "\"Infinity\"" : fmt::format("\"{}\"", word);
+          out += fmt::format("\"{}\"", word);
           i += len - 1;
           goto next;
         }

@@ -45,6 +45,14 @@ struct TrajectoryOptions {
   int threads = 1;                  // snapshots evaluated in parallel; results do not depend on it
 };
 
+// Evaluate one snapshot (for live runs, which add one point at a time). `net_out`, when given,
+// receives the network read from it.
+SnapshotPoint EvaluateSnapshot(const io::RunDir& run, const io::SnapshotRef& ref, const model::Dataset* data,
+                               const TrajectoryOptions& options, model::Network* net_out = nullptr);
+
+// Layers to treat as held fixed: marked trainable=false, or identical in `first` and `now`.
+std::vector<bool> FrozenLayers(const io::Manifest& manifest, const model::Network& first, const model::Network& now);
+
 // Evaluate every snapshot on `data` (nullptr: use grad/<name> arrays from the snapshots).
 Trajectory ComputeTrajectory(const io::RunDir& run, const std::vector<io::SnapshotRef>& snaps,
                              const model::Dataset* data, const TrajectoryOptions& options);

@@ -1,0 +1,76 @@
+#include "cli/audit_args.h"
+
+#include <fstream>
+
+#include "cli/options.h"
+#include "plaudit/core/error.h"
+
+namespace plaudit::cli {
+namespace {
+
+struct ThresholdFlag {
+  const char* flag;
+  const char* key;  // check.field as in the thresholds file
+  const char* help;
+};
+
+constexpr ThresholdFlag kThresholdFlags[] = {
+    {"--decay-ratio", "gradient-decay.decay_ratio", "gradient-decay fails when sup|grad| now / peak > this (1e-2)"},
+    {"--slope-t", "gradient-decay.slope_t", "gradient-decay fails when the tail slope of log sup|grad| has t > this (2)"},
+    {"--spread-threshold", "support-spread.threshold", "support-spread fails when empty cap / random-direction median > this (2)"},
+    {"--alpha", "residual-fit.alpha", "residual-fit explains only when p <= this (0.01)"},
+    {"--effect-threshold", "residual-fit.effect_threshold", "... and the out-of-fold loss fraction removed >= this (0.01)"},
+    {"--min-removable", "residual-fit.min_removable_rel", "... and the removable loss >= this x L0 (1e-4)"},
+    {"--plateau-rel", "loss-plateau.rel_threshold", "plateau when the tail drop / current loss < this (1e-2)"},
+    {"--plateau-abs", "loss-plateau.abs_threshold", "... or when the tail drop / L0 < this (1e-4)"},
+    {"--global-ratio", "verdict.global_loss_ratio", "global outright when loss <= this x L0 (1e-6)"},
+};
+
+nlohmann::json ReadJsonFile(const std::string& path) {
+  std::ifstream in(path);
+  if (!in) raise(ExitCode::kMissing, "{}: thresholds file not found", path);
+  const auto j = nlohmann::json::parse(in, nullptr, false);
+  if (j.is_discarded()) raise(ExitCode::kBadData, "{}: not valid JSON", path);
+  return j;
+}
+
+}  // namespace
+
+void AddAuditArgs(CLI::App& app, AuditArgs& args) {
+  app.add_option("run", args.run, "Run directory")->required();
+  AddFormatOption(app, args.format, {"text", "json"});
+  auto& o = args.options;
+  app.add_option("--seed", o.seed, "Seed for every random choice (row subsample, probes, features, permutations)")->capture_default_str();
+  app.add_option("--threads", o.threads, "Snapshots evaluated in parallel")->check(CLI::Range(1, 256))->capture_default_str();
+  app.add_option("--max-rows", o.max_rows, "Audit rows: subsample data.npz to at most this many (0 = all)")
+      ->check(CLI::NonNegativeNumber)->capture_default_str();
+  app.add_option("--block-rows", o.block_rows, "Rows per block of the forward/backward pass")->check(CLI::PositiveNumber)->capture_default_str();
+  app.add_option("--layer", o.gradient_decay.layer, "Layer (1-based) whose gradient is judged; 0 = by depth")
+      ->check(CLI::NonNegativeNumber)->capture_default_str();
+  app.add_option("--features", o.residual_fit.features, "residual-fit: fresh random units")->check(CLI::PositiveNumber)->capture_default_str();
+  app.add_option("--permutations", o.residual_fit.permutations, "residual-fit: permutations of the null")->check(CLI::PositiveNumber)->capture_default_str();
+  app.add_option("--probes", o.support_spread.probes, "support-spread: random probes of the sphere")->check(CLI::PositiveNumber)->capture_default_str();
+  AddAuditThresholdArgs(app, args);
+}
+
+void AddAuditThresholdArgs(CLI::App& app, AuditArgs& args) {
+  app.add_option("--thresholds", args.thresholds_file, "JSON file of thresholds, shaped like the report's 'thresholds'");
+  for (const auto& f : kThresholdFlags) {
+    app.add_option_function<double>(f.flag, [&args, key = f.key](double v) { args.threshold_flags[key] = v; }, f.help);
+  }
+}
+
+audit::AuditOptions AuditArgs::Resolve() const {
+  audit::AuditOptions resolved = options;
+  if (!thresholds_file.empty()) audit::ApplyThresholds(ReadJsonFile(thresholds_file), thresholds_file, resolved);
+  nlohmann::json flags = nlohmann::json::object();
+  for (const auto& [key, value] : threshold_flags) {
+    const auto dot = key.find('.');
+    flags[key.substr(0, dot)][key.substr(dot + 1)] = value;
+  }
+  audit::ApplyThresholds(flags, "command line", resolved);
+  if (std::string why; !resolved.IsValid(&why)) raise(ExitCode::kUsage, "invalid option: {}", why);
+  return resolved;
+}
+
+}  // namespace plaudit::cli

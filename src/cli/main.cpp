@@ -1,0 +1,47 @@
+// plaudit: audit a trained fully-connected network's loss plateau.
+#include <cstdio>
+#include <iostream>
+
+#include <fmt/core.h>
+
+#include "cli/commands.h"
+#include "plaudit/core/error.h"
+
+int main(int argc, char** argv) {
+  CLI::App app{"plaudit: is this loss plateau a spurious stationary point, a global one, or still moving?"};
+  app.require_subcommand(1);
+  app.set_version_flag("--version", "plaudit 0.1.0");
+  std::vector<plaudit::cli::Command> commands = {
+      plaudit::cli::AddInspectCommand(app),
+      plaudit::cli::AddAuditCommand(app),
+      plaudit::cli::AddCheckCommand(app),
+      plaudit::cli::AddWatchCommand(app),
+      plaudit::cli::AddTrainCommand(app),
+      plaudit::cli::AddSynthCommand(app),
+  };
+  try {
+    app.parse(argc, argv);
+  } catch (const CLI::CallForHelp& e) {
+    return app.exit(e);
+  } catch (const CLI::CallForAllHelp& e) {
+    return app.exit(e);
+  } catch (const CLI::CallForVersion& e) {
+    return app.exit(e);
+  } catch (const CLI::ParseError& e) {
+    app.exit(e);
+    return static_cast<int>(plaudit::ExitCode::kUsage);
+  }
+  try {
+    for (auto& c : commands) {
+      if (c.app != nullptr && c.app->parsed()) return c.run();
+    }
+  } catch (const plaudit::Error& e) {
+    std::fflush(stdout);
+    fmt::print(stderr, "plaudit: {}\n", e.what());
+    return e.exit_status();
+  } catch (const std::bad_alloc&) {
+    fmt::print(stderr, "plaudit: out of memory (try a smaller --max-rows)\n");
+    return static_cast<int>(plaudit::ExitCode::kBadData);
+  }
+  return static_cast<int>(plaudit::ExitCode::kUsage);
+}
