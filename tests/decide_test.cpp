@@ -116,3 +116,15 @@ TEST_CASE("verdicts map to the contract's exit codes", "[verdict]") {
   CHECK(static_cast<int>(VerdictExitCode(Verdict::kInconclusive)) == 2);
   CHECK(static_cast<int>(VerdictExitCode(Verdict::kDiverged)) == 3);
 }
+
+TEST_CASE("gradient settled at a noise floor (warn): judged as stationary at that level", "[verdict]") {
+  Case c;
+  c.grad = Result("gradient-decay", Status::kWarn, 0.03, 1e-2);
+  auto d = c.Run();
+  CHECK(d.verdict == Verdict::kGlobal);
+  CHECK(d.summary.find("noise floor") != std::string::npos);
+  c.residual = Result("residual-fit", Status::kFail, 0.2, 1e-2, 0.005);
+  d = c.Run();
+  CHECK(d.verdict == Verdict::kSpurious);
+  CHECK(d.summary.find("noise floor") != std::string::npos);
+}

@@ -236,3 +236,39 @@ TEST_CASE("least-squares slope on exact lines and bad input", "[gradient-decay][
   CHECK_THROWS_AS(FitLine({0, 1, 2}, {0, 1}), std::invalid_argument);
   CHECK_THROWS_AS(FitLine({0, 1, 2}, {0, std::nan(""), 2}), std::invalid_argument);
 }
+
+// Constant-step SGD: the full-batch gradient falls from its peak and then hovers at a noise
+// floor (the stationary distribution of SGD has a non-zero gradient; e.g. Mandt, Hoffman & Blei,
+// "Stochastic Gradient Descent as Approximate Bayesian Inference", JMLR 2017). The check warns.
+TEST_CASE("gradient-decay warns at a flat noise floor below floor_ratio", "[gradient-decay]") {
+  // Decays e-fold every 100 steps to a floor of 0.03 of the peak, with a +-10% alternating wobble.
+  const Trajectory t = Build(Steps(3000, 100), 1, [](double s) {
+    const double wobble = (static_cast<long>(s / 100.0) % 2 == 0) ? 1.1 : 0.9;
+    return 0.03 * wobble + std::exp(-s / 100.0);
+  });
+  const auto r = RunGradientDecay(t, 1, GradientDecayOptions{});
+  CHECK(r.status == Status::kWarn);
+  CHECK(r.detail["settled"] == true);
+  CHECK(r.statistic == Approx(0.033 / (1.0 + 0.033)).epsilon(1e-3));  // last point is a 1.1 wobble, peak at step 0
+  CHECK(std::abs(r.detail["slope_t"].get<double>()) <= 2.0);
+  // The exception is off when floor_ratio equals decay_ratio: then the same curve fails.
+  GradientDecayOptions off;
+  off.floor_ratio = off.decay_ratio;
+  CHECK(RunGradientDecay(t, 1, off).status == Status::kFail);
+}
+
+TEST_CASE("gradient-decay still fails a floor above floor_ratio or a tail still falling", "[gradient-decay]") {
+  // Hovering at 0.3 of the peak: not a floor far enough below it.
+  const Trajectory high = Build(Steps(3000, 100), 1, [](double s) { return 0.3 + std::exp(-s / 100.0); });
+  CHECK(RunGradientDecay(high, 1, GradientDecayOptions{}).status == Status::kFail);
+  // Still falling steadily at 0.05 of the peak: not settled, keep waiting.
+  const Trajectory falling = Build(Steps(3000, 100), 1, [](double s) { return 0.05 * std::exp(-(s - 3000.0) / 5000.0) * (s == 0 ? 20.0 : 1.0); });
+  const auto r = RunGradientDecay(falling, 1, GradientDecayOptions{});
+  CHECK(r.status == Status::kFail);
+  CHECK(r.detail["settled"] == false);
+  GradientDecayOptions bad;
+  bad.floor_ratio = 1e-3;  // below decay_ratio
+  std::string why;
+  CHECK_FALSE(bad.IsValid(&why));
+  CHECK(why.find("floor_ratio") != std::string::npos);
+}

@@ -17,6 +17,14 @@ double DetailNumber(const CheckResult* r, const char* key, double fallback = std
   return r->detail[key].get<double>();
 }
 
+// How the judged layer's gradient ended: decayed, or settled at a noise floor (a warn).
+std::string GradientState(const DecisionInputs& in) {
+  if (Is(in.gradient_decay, Status::kWarn)) {
+    return fmt::format("has settled at a noise floor ({:.3g} of its peak, flat tail)", in.gradient_decay->statistic);
+  }
+  return "has decayed";
+}
+
 std::string LossLevel(const DecisionInputs& in) {
   return in.baseline_loss > 0 ? fmt::format("{:.3g} x L0", in.last_loss / in.baseline_loss)
                               : fmt::format("{:.3g}", in.last_loss);
@@ -41,9 +49,9 @@ std::string SpuriousAdvice(const DecisionInputs& in) {
 
 Decision Converged(const DecisionInputs& in) {
   std::string s = fmt::format(
-      "Global: the loss is flat at {}, the layer-{} gradient has decayed, and fresh features explain no more of the "
+      "Global: the loss is flat at {}, the layer-{} gradient {}, and fresh features explain no more of the "
       "remaining error than chance (p = {:.3g}); the rest is noise or beyond this function class, so stop training",
-      LossLevel(in), in.gradient_layer + 1, in.residual_fit->p_value.value_or(std::nan("")));
+      LossLevel(in), in.gradient_layer + 1, GradientState(in), in.residual_fit->p_value.value_or(std::nan("")));
   if (Is(in.support_spread, Status::kFail)) {
     s += fmt::format(" (note: first-layer directions have bunched up, {:.3g}x the random empty cap)",
                      in.support_spread->statistic);
@@ -88,9 +96,9 @@ Decision Decide(const DecisionInputs& in) {
   if (Is(in.residual_fit, Status::kFail)) {
     const double eta = in.residual_fit->statistic;
     return {Verdict::kSpurious,
-            fmt::format("Spurious: the loss is flat at {} and the layer-{} gradient has decayed, yet fresh features "
+            fmt::format("Spurious: the loss is flat at {} and the layer-{} gradient {}, yet fresh features "
                         "remove {:.3g}% of the remaining loss out-of-fold (p = {:.3g}); {}.",
-                        LossLevel(in), in.gradient_layer + 1, 100.0 * eta, in.residual_fit->p_value.value_or(std::nan("")),
+                        LossLevel(in), in.gradient_layer + 1, GradientState(in), 100.0 * eta, in.residual_fit->p_value.value_or(std::nan("")),
                         SpuriousAdvice(in))};
   }
   return Converged(in);

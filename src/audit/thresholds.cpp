@@ -18,6 +18,7 @@ const std::vector<ThresholdField>& Fields() {
   static const std::vector<ThresholdField> fields = {
       {"gradient-decay", "decay_ratio", [](AuditOptions& o) -> double& { return o.gradient_decay.decay_ratio; }},
       {"gradient-decay", "slope_t", [](AuditOptions& o) -> double& { return o.gradient_decay.slope_t; }},
+      {"gradient-decay", "floor_ratio", [](AuditOptions& o) -> double& { return o.gradient_decay.floor_ratio; }},
       {"support-spread", "threshold", [](AuditOptions& o) -> double& { return o.support_spread.threshold; }},
       {"residual-fit", "alpha", [](AuditOptions& o) -> double& { return o.residual_fit.alpha; }},
       {"residual-fit", "effect_threshold", [](AuditOptions& o) -> double& { return o.residual_fit.effect_threshold; }},

@@ -134,6 +134,9 @@ bool GradientDecayOptions::IsValid(std::string* why) const {
     return fail("decay_ratio must be positive and finite");
   }
   if (!std::isfinite(slope_t)) return fail("slope_t must be finite");
+  if (!(floor_ratio >= decay_ratio) || !std::isfinite(floor_ratio)) {
+    return fail("floor_ratio must be finite and >= decay_ratio");
+  }
   if (min_snapshots < 3) return fail("min_snapshots must be at least 3");
   if (!(uniformity_factor >= 1.0) || !std::isfinite(uniformity_factor)) {
     return fail("uniformity_factor must be finite and >= 1");
@@ -181,7 +184,9 @@ CheckResult RunGradientDecay(const audit::Trajectory& trajectory, int layer0,
 
   CheckResult r;
   r.name = kGradientDecayName;
-  r.status = decayed && !growing ? Status::kPass : Status::kFail;
+  // Settled: far below the peak, then flat (neither falling nor growing significantly).
+  const bool settled = !decayed && !growing && rho <= options.floor_ratio && fit.slope_t >= -options.slope_t;
+  r.status = decayed && !growing ? Status::kPass : (settled ? Status::kWarn : Status::kFail);
   r.statistic = rho;
   r.threshold = threshold;
   r.detail = {{"layer", layer1},
@@ -189,6 +194,8 @@ CheckResult RunGradientDecay(const audit::Trajectory& trajectory, int layer0,
               {"decay_ratio", options.decay_ratio},
               {"decayed", decayed},
               {"growing", growing},
+              {"settled", settled},
+              {"floor_ratio", options.floor_ratio},
               {"steps", s.step_ids},
               {"sup", s.sup},
               {"mean", s.mean},
@@ -207,7 +214,10 @@ CheckResult RunGradientDecay(const audit::Trajectory& trajectory, int layer0,
               {"uniformity_ratio", u.ratio},
               {"uniformity_factor", options.uniformity_factor},
               {"few_neurons_moving", u.last > options.uniformity_factor * u.median}};
-  r.message = Message(layer1, decayed, growing, rho, fit.slope_t, static_cast<std::size_t>(fit.n));
+  r.message = settled ? fmt::format("layer {} gradient settled at {:.3g} of its peak with a flat tail (t = {:.3g}): "
+                                    "a noise floor, as constant-step SGD leaves",
+                                    layer1, rho, fit.slope_t)
+                      : Message(layer1, decayed, growing, rho, fit.slope_t, static_cast<std::size_t>(fit.n));
   return r;
 }
 

@@ -17,6 +17,7 @@ struct ThresholdFlag {
 constexpr ThresholdFlag kThresholdFlags[] = {
     {"--decay-ratio", "gradient-decay.decay_ratio", "gradient-decay fails when sup|grad| now / peak > this (1e-2)"},
     {"--slope-t", "gradient-decay.slope_t", "gradient-decay fails when the tail slope of log sup|grad| has t > this (2)"},
+    {"--floor-ratio", "gradient-decay.floor_ratio", "... but only warns when rho <= this and the tail is flat: an SGD noise floor (0.1)"},
     {"--spread-threshold", "support-spread.threshold", "support-spread fails when empty cap / random-direction median > this (2)"},
     {"--alpha", "residual-fit.alpha", "residual-fit explains only when p <= this (0.01)"},
     {"--effect-threshold", "residual-fit.effect_threshold", "... and the out-of-fold loss fraction removed >= this (0.01)"},

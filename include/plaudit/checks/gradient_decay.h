@@ -7,6 +7,10 @@
 // the snapshots (at least 3), with its standard error and t = slope / se.
 // Fails when rho > decay_ratio (the gradient has not fallen far from its peak) OR
 // t > slope_t (the gradient is growing again, as when training leaves a saddle); else passes.
+// Exception, status warn: rho <= floor_ratio and the tail is flat (|t| <= slope_t). The gradient
+// fell far from its peak and then stopped falling: the noise floor that minibatch SGD at a
+// constant step size leaves (the full-batch gradient settles instead of going to zero). The
+// verdict then judges the plateau as stationary at that noise level.
 // Uniformity U(t) = S(t) / M(t) is reported alongside: a sup far above the mean at the end
 // means a few neurons still move while the rest have stopped.
 #include <string>
@@ -30,6 +34,9 @@ struct GradientDecayOptions {
   int layer = 0;                  // 1-based; 0 = DefaultGradientLayer
   double decay_ratio = 1e-2;      // fails when rho = S(last) / max_t S(t) > decay_ratio; > 0
   double slope_t = 2.0;           // fails when the tail slope of log S has t-statistic > slope_t
+  // warns instead of failing when decay_ratio < rho <= floor_ratio and |t| <= slope_t; set it to
+  // decay_ratio to turn the exception off. 0.1 (one order of magnitude) is common practice.
+  double floor_ratio = 0.1;
   int min_snapshots = 3;          // skips with fewer snapshots; >= 3 (a slope needs a residual)
   double uniformity_factor = 4.0; // detail.few_neurons_moving when U(last) > uniformity_factor *
                                   // median_t U(t); 4x is common practice, not a derived bound
