@@ -17,6 +17,10 @@ using Inputs = AuditInputs;
 
 AuditInputs ReadAuditInputs(const io::RunDir& run, const AuditOptions& options) {
   Inputs in;
+  std::error_code ec;
+  if (!std::filesystem::is_directory(run.snapshot_dir(), ec)) {
+    raise(ExitCode::kMissing, "{}: snapshots directory not found", run.snapshot_dir().string());
+  }
   in.snaps = run.Snapshots();
   if (in.snaps.empty()) {
     raise(ExitCode::kBadData, "{}: no snapshots (expected files named step-<N>.npz)", run.snapshot_dir().string());
@@ -25,6 +29,7 @@ AuditInputs ReadAuditInputs(const io::RunDir& run, const AuditOptions& options) 
   in.first = model::NetworkFromArrays(m, run.ReadSnapshot(in.snaps.front()), in.snaps.front().path.string());
   in.last = in.snaps.size() == 1 ? in.first
                                  : model::NetworkFromArrays(m, run.ReadSnapshot(in.snaps.back()), in.snaps.back().path.string());
+  RequireSameArchitecture(m, in.first, in.snaps.front().path.string(), in.last, in.snaps.back().path.string());
   if (run.has_data()) {
     model::Dataset full = model::ReadDataset(run.data_path(), m.loss, in.last.output_dim());
     if (full.dim() != in.last.input_dim()) {

@@ -80,10 +80,31 @@ std::vector<bool> FrozenLayers(const io::Manifest& manifest, const model::Networ
   std::vector<bool> frozen(manifest.layers.size(), false);
   const bool compare = &first != &now;
   for (std::size_t l = 0; l < frozen.size(); ++l) {
-    const bool same = compare && first.layers[l].weight == now.layers[l].weight && first.layers[l].bias == now.layers[l].bias;
+    // Eigen's == on matrices of different sizes reads out of bounds: compare shapes first.
+    const bool same = compare && first.layers[l].weight.rows() == now.layers[l].weight.rows() &&
+                      first.layers[l].weight.cols() == now.layers[l].weight.cols() &&
+                      first.layers[l].weight == now.layers[l].weight && first.layers[l].bias == now.layers[l].bias;
     frozen[l] = !manifest.layers[l].trainable || same;
   }
   return frozen;
+}
+
+void RequireSameArchitecture(const io::Manifest& manifest, const model::Network& reference,
+                             const std::string& reference_file, const model::Network& net, const std::string& file) {
+  const bool in_out = manifest.weight_layout == io::WeightLayout::kInOut;
+  // Shapes as the files store them.
+  const auto shape = [in_out](const Eigen::MatrixXd& w) {
+    return in_out ? fmt::format("({}, {})", w.cols(), w.rows()) : fmt::format("({}, {})", w.rows(), w.cols());
+  };
+  for (std::size_t l = 0; l < manifest.layers.size(); ++l) {
+    const Eigen::MatrixXd& a = reference.layers[l].weight;
+    const Eigen::MatrixXd& b = net.layers[l].weight;
+    if (a.rows() != b.rows() || a.cols() != b.cols()) {
+      raise(ExitCode::kBadData,
+            "{}: layer {} weight '{}' has shape {} but {} in {} (every snapshot of a run must have one architecture)",
+            file, l + 1, manifest.layers[l].weight, shape(b), shape(a), reference_file);
+    }
+  }
 }
 
 GradientStats ComputeGradientStats(const Eigen::MatrixXd& g) {
@@ -125,6 +146,7 @@ Trajectory ComputeTrajectory(const io::RunDir& run, const std::vector<io::Snapsh
     for (std::size_t i = next++; i < snaps.size() && !failed; i = next++) {
       try {
         SnapshotWork w = Work(run, snaps[i], data, options);
+        RequireSameArchitecture(manifest, first.net, snaps.front().path.string(), w.net, snaps[i].path.string());
         same[i] = FrozenLayers(manifest, first.net, w.net);
         points[i] = std::move(w.point);
       } catch (...) {

@@ -16,6 +16,11 @@ Eigen::MatrixXd ReadWeight(const io::NdArray& a, io::WeightLayout layout, const 
   if (a.ndim() != 2) {
     raise(ExitCode::kBadData, "{}: weight '{}' must be 2-D, found shape {}", file, name, a.ShapeString());
   }
+  // A layer without inputs or units computes nothing (and a mean-field factor of 1/0).
+  if (a.shape[0] == 0 || a.shape[1] == 0) {
+    raise(ExitCode::kBadData, "{}: weight '{}' has shape {}: every layer needs at least one input and one unit", file,
+          name, a.ShapeString());
+  }
   Eigen::MatrixXd w = a.AsMatrix(file);
   if (layout == io::WeightLayout::kInOut) w.transposeInPlace();
   return w;

@@ -2,6 +2,7 @@
 // One pass over the snapshots: loss and per-layer gradient statistics at each saved step.
 // Every check that looks at the run over time reads this instead of re-reading snapshots.
 #include <cstdint>
+#include <string>
 #include <vector>
 
 #include "plaudit/io/run_dir.h"
@@ -52,6 +53,11 @@ SnapshotPoint EvaluateSnapshot(const io::RunDir& run, const io::SnapshotRef& ref
 
 // Layers to treat as held fixed: marked trainable=false, or identical in `first` and `now`.
 std::vector<bool> FrozenLayers(const io::Manifest& manifest, const model::Network& first, const model::Network& now);
+
+// Every snapshot of a run holds one architecture: throws Error(kBadData) naming `file`, the
+// layer and `reference_file` when a weight's shape differs from the reference snapshot's.
+void RequireSameArchitecture(const io::Manifest& manifest, const model::Network& reference,
+                             const std::string& reference_file, const model::Network& net, const std::string& file);
 
 // Evaluate every snapshot on `data` (nullptr: use grad/<name> arrays from the snapshots).
 Trajectory ComputeTrajectory(const io::RunDir& run, const std::vector<io::SnapshotRef>& snaps,
