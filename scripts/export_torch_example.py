@@ -14,6 +14,7 @@ predicts the leaf-surface humidity a sensor will read next. The target is made u
 `leaf_humidity` below.
 
 Usage: /usr/bin/python3 scripts/export_torch_example.py OUT [--steps 400] [--save-every 40]
+(OUT: a new or empty directory.)
 """
 import argparse
 import json
@@ -41,6 +42,7 @@ def start_run(run, model, x, y):
                 "weight_layout": "out_in", "layers": layers}
     (run / "run.json.tmp").write_text(json.dumps(manifest, indent=2))
     os.replace(run / "run.json.tmp", run / "run.json")
+    (run / "scalars.jsonl").write_text("")  # save_snapshot appends
 
 
 def save_snapshot(run, model, step, loss):

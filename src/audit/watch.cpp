@@ -71,14 +71,20 @@ void RunWatcher::ReadNewScalars(bool& changed) {
 }
 
 bool RunWatcher::PlateauNow() const {
+  // The run as of the newest snapshot: lines logged after it (all of them, when a finished run
+  // is watched) must not declare a plateau before the snapshots reach it.
+  const std::int64_t upto = trajectory_.points.back().step;
+  checks::LossSeries logged;
+  logged.source = "scalars";
+  for (const auto& r : scalars_) {
+    if (r.step > upto) continue;
+    logged.steps.push_back(r.step);
+    logged.loss.push_back(r.loss);
+  }
   checks::LossSeries series;
   const int min_points = options_.audit.loss_plateau.min_points;
-  if (static_cast<int>(scalars_.size()) >= min_points || !inputs_.data) {
-    series.source = "scalars";
-    for (const auto& r : scalars_) {
-      series.steps.push_back(r.step);
-      series.loss.push_back(r.loss);
-    }
+  if (static_cast<int>(logged.steps.size()) >= min_points || !inputs_.data) {
+    series = std::move(logged);
   } else {
     series.source = "snapshots";
     for (const auto& p : trajectory_.points) {
