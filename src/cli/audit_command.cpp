@@ -12,11 +12,14 @@ namespace plaudit::cli {
 Command AddAuditCommand(CLI::App& parent) {
   auto* app = parent.add_subcommand("audit", "Judge a run's plateau: global, spurious, moving, inconclusive or diverged");
   auto args = std::make_shared<AuditArgs>();
+  auto html = std::make_shared<std::string>();
   AddAuditArgs(*app, *args);
-  return {app, [args] {
+  app->add_option("--html", *html, "Also write the report as one self-contained HTML page to this file");
+  return {app, [args, html] {
             const audit::AuditOptions options = args->Resolve();
             const io::RunDir run(args->run);
             const audit::AuditReport report = audit::RunAudit(run, options);
+            if (!html->empty()) WriteHtmlReport(run, report, options, *html);
             if (args->format == "json") {
               std::cout << report::AuditReportToJson(report).dump(2) << "\n";
             } else {

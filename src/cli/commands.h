@@ -3,9 +3,12 @@
 // its options on a CLI11 subcommand and returns the function that runs it; `main` only parses,
 // dispatches and maps plaudit::Error to the contract's exit codes.
 #include <functional>
+#include <string>
 #include <vector>
 
 #include <CLI/CLI.hpp>
+
+#include "plaudit/audit/audit.h"
 
 namespace plaudit::cli {
 
@@ -22,5 +25,11 @@ Command AddCheckCommand(CLI::App& parent);
 Command AddTrainCommand(CLI::App& parent);
 Command AddWatchCommand(CLI::App& parent);
 Command AddSynthCommand(CLI::App& parent);
+Command AddReportCommand(CLI::App& parent);
+
+// Write the HTML page of `report` to `path` (`report` and `audit --html`); returns the audit's
+// exit status.
+int WriteHtmlReport(const io::RunDir& run, const audit::AuditReport& report, const audit::AuditOptions& options,
+                    const std::string& path);
 
 }  // namespace plaudit::cli

@@ -9,11 +9,17 @@
 
 int main(int argc, char** argv) {
   CLI::App app{"plaudit: is this loss plateau a spurious stationary point, a global one, or still moving?"};
-  app.require_subcommand(1);
+  // One line per error, like every other bad input. At most one subcommand: an unknown word is
+  // then reported by name (with a minimum, CLI11 only says a subcommand is required).
+  app.failure_message([](const CLI::App*, const CLI::Error& e) {
+    return fmt::format("plaudit: {} (see plaudit --help)\n", e.what());
+  });
+  app.require_subcommand(0, 1);
   app.set_version_flag("--version", "plaudit 0.1.0");
   std::vector<plaudit::cli::Command> commands = {
       plaudit::cli::AddInspectCommand(app),
       plaudit::cli::AddAuditCommand(app),
+      plaudit::cli::AddReportCommand(app),
       plaudit::cli::AddCheckCommand(app),
       plaudit::cli::AddWatchCommand(app),
       plaudit::cli::AddTrainCommand(app),
@@ -35,6 +41,9 @@ int main(int argc, char** argv) {
     for (auto& c : commands) {
       if (c.app != nullptr && c.app->parsed()) return c.run();
     }
+    std::string names;
+    for (const auto& c : commands) names += (names.empty() ? "" : ", ") + c.app->get_name();
+    fmt::print(stderr, "plaudit: a subcommand is required ({}; see plaudit --help)\n", names);
   } catch (const plaudit::Error& e) {
     std::fflush(stdout);
     fmt::print(stderr, "plaudit: {}\n", e.what());
