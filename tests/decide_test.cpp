@@ -128,3 +128,14 @@ TEST_CASE("gradient settled at a noise floor (warn): judged as stationary at tha
   CHECK(d.verdict == Verdict::kSpurious);
   CHECK(d.summary.find("noise floor") != std::string::npos);
 }
+
+TEST_CASE("residual explained but negligible: global, and the summary says why", "[verdict]") {
+  Case c;
+  c.residual = Result("residual-fit", Status::kPass, 0.2, 1e-2, 0.005);
+  c.residual.detail = {{"significant", true}, {"removable_below_floor", true}, {"removable", 2e-6}};
+  c.loss = 1e-5;
+  const auto d = c.Run();
+  CHECK(d.verdict == Verdict::kGlobal);
+  CHECK(d.summary.find("below the floor") != std::string::npos);
+  CHECK(d.summary.find("chance") == std::string::npos);
+}

@@ -47,7 +47,21 @@ std::string SpuriousAdvice(const DecisionInputs& in) {
   return "restart from a new initialisation or widen the network";
 }
 
+bool DetailFlag(const CheckResult* r, const char* key) {
+  return r != nullptr && r->detail.contains(key) && r->detail[key].is_boolean() && r->detail[key].get<bool>();
+}
+
 Decision Converged(const DecisionInputs& in) {
+  // Passed only because what fresh features remove is too small to matter: say that, not "chance".
+  if (DetailFlag(in.residual_fit, "significant") && DetailFlag(in.residual_fit, "removable_below_floor") &&
+      in.residual_fit->statistic >= in.residual_fit->threshold) {
+    const double removable = DetailNumber(in.residual_fit, "removable");
+    return {Verdict::kGlobal,
+            fmt::format("Global: the loss is flat at {}, the layer-{} gradient {}, and what fresh features still remove "
+                        "({:.3g}% of the remaining loss, {:.2g} x L0) is below the floor worth chasing; stop training.",
+                        LossLevel(in), in.gradient_layer + 1, GradientState(in), 100.0 * in.residual_fit->statistic,
+                        in.baseline_loss > 0 ? removable / in.baseline_loss : removable)};
+  }
   std::string s = fmt::format(
       "Global: the loss is flat at {}, the layer-{} gradient {}, and fresh features explain no more of the "
       "remaining error than chance (p = {:.3g}); the rest is noise or beyond this function class, so stop training",

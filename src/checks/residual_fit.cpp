@@ -755,6 +755,8 @@ CheckResult RunResidualFit(const model::Network& net, const model::Dataset& data
   d["p_b"] = b.p;
   d["chosen"] = chosen;
   d["removable"] = removable;
+  d["significant"] = pv <= options.alpha;
+  d["removable_below_floor"] = !big_enough;
   d["current_loss"] = current;
   d["baseline_loss"] = baseline_loss;
   d["rows"] = n;
