@@ -80,13 +80,7 @@ void CheckShapes(const model::Network& last, const model::Network* first,
           kLayerDegeneracyName, data.dim(), last.input_dim());
   }
   if (first == nullptr) return;
-  bool same = first->depth() == last.depth();
-  for (int l = 0; same && l < last.depth(); ++l) {
-    const auto& a = first->layers[static_cast<std::size_t>(l)].weight;
-    const auto& b = last.layers[static_cast<std::size_t>(l)].weight;
-    same = a.rows() == b.rows() && a.cols() == b.cols();
-  }
-  if (!same) {
+  if (!model::SameLayerShapes(*first, last)) {
     raise(ExitCode::kBadData, "{}: the first network does not have the last network's layer shapes",
           kLayerDegeneracyName);
   }

@@ -148,13 +148,7 @@ SideResult MeasureSide(const model::Network& last, const model::Network* first, 
 
 void CheckShapes(const model::Network& last, const model::Network* first) {
   if (first == nullptr) return;
-  bool same = first->depth() == last.depth();
-  for (int l = 0; same && l < last.depth(); ++l) {
-    const auto& a = first->layers[static_cast<std::size_t>(l)].weight;
-    const auto& b = last.layers[static_cast<std::size_t>(l)].weight;
-    same = a.rows() == b.rows() && a.cols() == b.cols();
-  }
-  if (!same) {
+  if (!model::SameLayerShapes(*first, last)) {
     raise(ExitCode::kBadData, "{}: the first network does not have the last network's layer shapes",
           kTwoWayDiversityName);
   }

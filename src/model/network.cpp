@@ -92,6 +92,16 @@ io::ArrayMap NetworkToArrays(const io::Manifest& manifest, const Network& net) {
   return arrays;
 }
 
+bool SameLayerShapes(const Network& a, const Network& b) {
+  if (a.depth() != b.depth()) return false;
+  for (std::size_t l = 0; l < a.layers.size(); ++l) {
+    const auto& wa = a.layers[l].weight;
+    const auto& wb = b.layers[l].weight;
+    if (wa.rows() != wb.rows() || wa.cols() != wb.cols()) return false;
+  }
+  return true;
+}
+
 double WeightGradScale(const Network& net, int layer) {
   const double next = layer + 1 < net.depth() ? net.layers[static_cast<std::size_t>(layer) + 1].multiplier : 1.0;
   return 1.0 / (net.layers[static_cast<std::size_t>(layer)].multiplier * next);

@@ -50,6 +50,9 @@ io::ArrayMap NetworkToArrays(const io::Manifest& manifest, const Network& net);
 // Factor that turns the raw gradient of layer l into the parameterization's own scale, in which
 // every weight moves by O(1) in O(1) time: 1 / (m_l * m_{l+1}) for weights and 1 / m_{l+1} for
 // biases, with m_{L+1} = 1. Standard parameterization: 1.
+// Same depth and the same weight shape in every layer (snapshots of one architecture).
+bool SameLayerShapes(const Network& a, const Network& b);
+
 double WeightGradScale(const Network& net, int layer);
 double BiasGradScale(const Network& net, int layer);
 
