@@ -10,9 +10,9 @@
 
 #include <fmt/format.h>
 
+#include "plaudit/checks/neuron_frame.h"
 #include "plaudit/core/error.h"
 #include "plaudit/stats/covering_radius.h"
-#include "plaudit/stats/pca.h"
 
 namespace plaudit::checks {
 namespace {
@@ -21,122 +21,9 @@ using Eigen::Index;
 
 constexpr int kAutoDims = 6;
 constexpr int kMaxDims = 8;
-// A principal direction of corr(x) with a moment below this share of the largest is rank noise.
-constexpr double kRankTolerance = 1e-9;
-// A column whose spread is below this share of its magnitude is constant up to round-off.
-constexpr double kConstantColumn = 1e-12;
-// A projected neuron shorter than this share of the longest |v_j| has no direction.
-constexpr double kZeroProjection = 1e-12;
 constexpr Index kGramBlock = 256;
 
 double Degrees(double radians) { return radians * 180.0 / std::acos(-1.0); }
-
-// Column means and spreads (population sd) of the audit rows; a constant column gets scale 1
-// and is marked, so its standardised values are exactly zero.
-struct Standardisation {
-  Eigen::RowVectorXd mean;
-  Eigen::RowVectorXd scale;
-  std::vector<bool> constant;
-};
-
-Standardisation Standardise(const Eigen::MatrixXd& x) {
-  Standardisation s;
-  s.mean = x.colwise().mean();
-  const Eigen::MatrixXd centred = x.rowwise() - s.mean;
-  s.scale = (centred.colwise().squaredNorm() / static_cast<double>(x.rows())).cwiseSqrt();
-  const Eigen::RowVectorXd magnitude = x.cwiseAbs().colwise().maxCoeff();
-  s.constant.resize(static_cast<std::size_t>(x.cols()));
-  for (Index c = 0; c < x.cols(); ++c) {
-    const bool flat = !(s.scale(c) > kConstantColumn * magnitude(c));
-    s.constant[static_cast<std::size_t>(c)] = flat;
-    if (flat) s.scale(c) = 1.0;
-  }
-  return s;
-}
-
-Eigen::MatrixXd StandardisedInputs(const Eigen::MatrixXd& x, const Standardisation& s) {
-  Eigen::MatrixXd out = (x.rowwise() - s.mean).array().rowwise() / s.scale.array();
-  for (Index c = 0; c < x.cols(); ++c) {
-    if (s.constant[static_cast<std::size_t>(c)]) out.col(c).setZero();
-  }
-  return out;
-}
-
-// The k directions the neurons are read in, as columns of an orthonormal basis ordered by
-// moment. Augmented frame (first layer with a bias), in the space of [x', 1]: the constant
-// direction e_{d+1} has moment 1 and is kept always; the others are the leading principal
-// directions of corr(x) above rank noise. Bias-free frame: a neuron without a bias computes
-// w . x = (w .* sd) . (x ./ sd) and has no constant direction of its own, so the frame is the
-// leading principal directions of the uncentred second moment of x ./ sd, in R^d.
-struct DataFrame {
-  bool augmented = true;
-  Eigen::MatrixXd basis;
-  Eigen::VectorXd moments;
-  double total = 0.0;  // trace of the second moment the frame is taken from
-  int requested = 0;
-};
-
-// Principal directions with a moment above rank noise, as (moment, direction) pairs.
-std::vector<std::pair<double, Eigen::VectorXd>> LeadingDirections(const Eigen::MatrixXd& z,
-                                                                   int count, Eigen::Index pad,
-                                                                   std::uint64_t seed,
-                                                                   double* total) {
-  const stats::PrincipalAxes axes = stats::PrincipalDirections(z, count, /*centre=*/false, seed);
-  *total = axes.total;
-  const double largest = axes.moments.size() > 0 ? axes.moments(0) : 0.0;
-  std::vector<std::pair<double, Eigen::VectorXd>> columns;
-  for (Eigen::Index c = 0; c < axes.moments.size(); ++c) {
-    if (!(axes.moments(c) > kRankTolerance * largest)) break;
-    Eigen::VectorXd column = Eigen::VectorXd::Zero(z.cols() + pad);
-    column.head(z.cols()) = axes.directions.col(c);
-    columns.emplace_back(axes.moments(c), std::move(column));
-  }
-  return columns;
-}
-
-DataFrame FrameOf(const Eigen::MatrixXd& x, const Standardisation& s, bool augmented,
-                  int requested, std::uint64_t seed) {
-  DataFrame frame;
-  frame.augmented = augmented;
-  frame.requested = requested;
-  const Index d = x.cols();
-  std::vector<std::pair<double, Eigen::VectorXd>> columns;
-  if (augmented) {
-    columns = LeadingDirections(StandardisedInputs(x, s), requested - 1, 1, seed, &frame.total);
-    frame.total += 1.0;
-    if (columns.empty()) return frame;  // every input column constant
-    Eigen::VectorXd constant = Eigen::VectorXd::Zero(d + 1);
-    constant(d) = 1.0;
-    const auto at = std::find_if(columns.begin(), columns.end(),
-                                 [](const auto& c) { return c.first < 1.0; });
-    columns.emplace(at, 1.0, std::move(constant));
-  } else {
-    const Eigen::MatrixXd scaled = x.array().rowwise() / s.scale.array();
-    columns = LeadingDirections(scaled, requested, 0, seed, &frame.total);
-  }
-  frame.basis.resize(columns.empty() ? 0 : columns.front().second.size(),
-                     static_cast<Index>(columns.size()));
-  frame.moments.resize(static_cast<Index>(columns.size()));
-  for (std::size_t c = 0; c < columns.size(); ++c) {
-    frame.moments(static_cast<Index>(c)) = columns[c].first;
-    frame.basis.col(static_cast<Index>(c)) = columns[c].second;
-  }
-  return frame;
-}
-
-// One row per neuron: v_j = (m w_j .* sd, b_j + m w_j . mu) in the augmented frame, m w_j .* sd
-// in the bias-free one.
-Eigen::MatrixXd NeuronVectors(const model::DenseLayer& layer, const Standardisation& s,
-                              bool augmented) {
-  const Index d = layer.fan_in();
-  const Eigen::MatrixXd w = layer.multiplier * layer.weight;
-  if (!augmented) return w * s.scale.transpose().asDiagonal();
-  Eigen::MatrixXd v(layer.fan_out(), d + 1);
-  v.leftCols(d) = w * s.scale.transpose().asDiagonal();
-  v.col(d) = w * s.mean.transpose();
-  if (layer.has_bias && layer.bias.size() == layer.fan_out()) v.col(d) += layer.bias;
-  return v;
-}
 
 // Single-linkage clusters of unit directions: union-find over the cosine Gram matrix, a block of
 // rows at a time.
@@ -224,16 +111,14 @@ struct Spread {
 };
 
 std::optional<Spread> Measure(const model::DenseLayer& layer, const Standardisation& s,
-                              const DataFrame& frame, const SupportSpreadOptions& options) {
-  const Eigen::MatrixXd v = NeuronVectors(layer, s, frame.augmented);
+                              const NeuronFrame& frame, const SupportSpreadOptions& options) {
+  NeuronDirections directions = ProjectNeurons(layer, s, frame);
+  if (directions.kept.empty()) return std::nullopt;
   Spread out;
-  out.norms = v.rowwise().norm();
-  const Eigen::MatrixXd projected = v * frame.basis;
-  const Eigen::VectorXd length = projected.rowwise().norm();
-  const double floor = kZeroProjection * out.norms.maxCoeff();
-  for (Index j = 0; j < v.rows(); ++j) (length(j) > floor ? out.kept : out.dropped).push_back(j);
-  if (out.kept.empty()) return std::nullopt;
-  out.unit = length(out.kept).cwiseInverse().asDiagonal() * projected(out.kept, Eigen::all);
+  out.unit = std::move(directions.unit);
+  out.kept = std::move(directions.kept);
+  out.dropped = std::move(directions.dropped);
+  out.norms = std::move(directions.norms);
   stats::CoveringRadiusOptions cover_options;
   cover_options.probes = options.probes;
   cover_options.refine = options.refine;
@@ -344,7 +229,7 @@ CheckResult RunSupportSpread(const model::Network& last, const model::Network* f
   const bool augmented = layer.has_bias;
   const int requested = static_cast<int>(std::min<Index>(
       augmented ? d + 1 : d, options.dims == 0 ? kAutoDims : options.dims));
-  const DataFrame frame = FrameOf(rows.x, standard, augmented, requested, options.seed);
+  const NeuronFrame frame = FrameOf(rows.x, standard, augmented, requested, options.seed);
   if (frame.basis.cols() < 2) {
     return Skipped(kSupportSpreadName, options.threshold,
                    augmented ? "every input column is constant"
