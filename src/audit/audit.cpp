@@ -140,7 +140,11 @@ std::vector<std::string> CheckNames() { return {"gradient-decay", "support-sprea
 
 AuditReport RunAudit(const io::RunDir& run, const AuditOptions& options) {
   if (std::string why; !options.IsValid(&why)) raise(ExitCode::kUsage, "{}", why);
-  const Inputs in = ReadAuditInputs(run, options);
+  return RunAudit(run, ReadAuditInputs(run, options), options);
+}
+
+AuditReport RunAudit(const io::RunDir& run, const AuditInputs& in, const AuditOptions& options) {
+  if (std::string why; !options.IsValid(&why)) raise(ExitCode::kUsage, "{}", why);
   int layer = 0;
   Trajectory traj = TrajectoryForLayer(run, in, options, layer);
   return AuditFromTrajectory(run, in, std::move(traj), layer, options);

@@ -18,8 +18,9 @@ Command AddAuditCommand(CLI::App& parent) {
   return {app, [args, html] {
             const audit::AuditOptions options = args->Resolve();
             const io::RunDir run(args->run);
-            const audit::AuditReport report = audit::RunAudit(run, options);
-            if (!html->empty()) WriteHtmlReport(run, report, options, *html);
+            const audit::AuditInputs inputs = audit::ReadAuditInputs(run, options);
+            const audit::AuditReport report = audit::RunAudit(run, inputs, options);
+            if (!html->empty()) WriteHtmlReport(inputs, report, *html);
             if (args->format == "json") {
               std::cout << report::AuditReportToJson(report).dump(2) << "\n";
             } else {

@@ -29,7 +29,7 @@ Command AddReportCommand(CLI::App& parent);
 
 // Write the HTML page of `report` to `path` (`report` and `audit --html`); returns the audit's
 // exit status.
-int WriteHtmlReport(const io::RunDir& run, const audit::AuditReport& report, const audit::AuditOptions& options,
+int WriteHtmlReport(const audit::AuditInputs& inputs, const audit::AuditReport& report,
                     const std::string& path);
 
 }  // namespace plaudit::cli

@@ -9,10 +9,9 @@
 
 namespace plaudit::cli {
 
-int WriteHtmlReport(const io::RunDir& run, const audit::AuditReport& report, const audit::AuditOptions& options,
-                    const std::string& path) {
+int WriteHtmlReport(const audit::AuditInputs& inputs, const audit::AuditReport& report, const std::string& path) {
   report::HtmlOptions html;
-  html.directions = report::DirectionMapForRun(run, report, options);
+  html.directions = report::DirectionMapForInputs(inputs, report);
   report::WriteFileAtomically(path, report::AuditReportToHtml(report, html));
   return static_cast<int>(audit::VerdictExitCode(report.verdict));
 }
@@ -26,8 +25,9 @@ Command AddReportCommand(CLI::App& parent) {
   return {app, [args, out] {
             const audit::AuditOptions options = args->Resolve();
             const io::RunDir run(args->run);
-            const audit::AuditReport report = audit::RunAudit(run, options);
-            const int status = WriteHtmlReport(run, report, options, *out);
+            const audit::AuditInputs inputs = audit::ReadAuditInputs(run, options);
+            const audit::AuditReport report = audit::RunAudit(run, inputs, options);
+            const int status = WriteHtmlReport(inputs, report, *out);
             if (args->format == "json") {
               std::cout << report::AuditReportToJson(report).dump(2) << "\n";
             } else {

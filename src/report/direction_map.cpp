@@ -102,7 +102,10 @@ DirectionMap ComputeDirectionMap(const model::Network& first, const model::Netwo
 
 std::optional<DirectionMap> DirectionMapForRun(const io::RunDir& run, const audit::AuditReport& report,
                                                const audit::AuditOptions& options) {
-  const audit::AuditInputs in = audit::ReadAuditInputs(run, options);
+  return DirectionMapForInputs(audit::ReadAuditInputs(run, options), report);
+}
+
+std::optional<DirectionMap> DirectionMapForInputs(const audit::AuditInputs& in, const audit::AuditReport& report) {
   if (!in.data || in.data->rows() < 2) return std::nullopt;
   try {
     return ComputeDirectionMap(in.first, in.last, *in.data, report);

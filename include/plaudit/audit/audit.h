@@ -75,6 +75,8 @@ struct AuditInputs {
   double baseline_loss = std::numeric_limits<double>::quiet_NaN();
 };
 AuditInputs ReadAuditInputs(const io::RunDir& run, const AuditOptions& options);
+// RunAudit on inputs already read (callers that also draw from them, e.g. the HTML report).
+AuditReport RunAudit(const io::RunDir& run, const AuditInputs& inputs, const AuditOptions& options);
 // Judge with a trajectory already computed down to `gradient_layer` (0-based).
 AuditReport AuditFromTrajectory(const io::RunDir& run, const AuditInputs& inputs, Trajectory trajectory,
                                 int gradient_layer, const AuditOptions& options);

@@ -54,5 +54,7 @@ DirectionMap ComputeDirectionMap(const model::Network& first, const model::Netwo
 // or when the inputs span fewer than two directions.
 std::optional<DirectionMap> DirectionMapForRun(const io::RunDir& run, const audit::AuditReport& report,
                                                const audit::AuditOptions& options);
+// The same from inputs the audit already read.
+std::optional<DirectionMap> DirectionMapForInputs(const audit::AuditInputs& inputs, const audit::AuditReport& report);
 
 }  // namespace plaudit::report
