@@ -25,6 +25,10 @@ const std::vector<ThresholdField>& Fields() {
       {"residual-fit", "min_removable_rel", [](AuditOptions& o) -> double& { return o.residual_fit.min_removable_rel; }},
       {"loss-plateau", "rel_threshold", [](AuditOptions& o) -> double& { return o.loss_plateau.rel_threshold; }},
       {"loss-plateau", "abs_threshold", [](AuditOptions& o) -> double& { return o.loss_plateau.abs_threshold; }},
+      {"curvature", "threshold", [](AuditOptions& o) -> double& { return o.curvature.threshold; }},
+      {"curvature", "min_decrease_rel", [](AuditOptions& o) -> double& { return o.curvature.min_decrease_rel; }},
+      {"layer-degeneracy", "threshold", [](AuditOptions& o) -> double& { return o.layer_degeneracy.threshold; }},
+      {"two-way-diversity", "threshold", [](AuditOptions& o) -> double& { return o.two_way_diversity.threshold; }},
       {"verdict", "global_loss_ratio", [](AuditOptions& o) -> double& { return o.global_loss_ratio; }},
   };
   return fields;
@@ -44,8 +48,12 @@ void ApplyThresholds(const nlohmann::json& j, const std::string& file, AuditOpti
   for (const auto& [check, fields] : j.items()) {
     if (!fields.is_object()) raise(ExitCode::kBadData, "{}: '{}' must be an object of thresholds", file, check);
     for (const auto& [field, value] : fields.items()) {
-      const auto it = std::find_if(Fields().begin(), Fields().end(),
-                                   [&](const ThresholdField& f) { return check == f.check && field == f.field; });
+      // Named copies: lambdas may capture structured bindings only from C++20 on.
+      const std::string& check_name = check;
+      const std::string& field_name = field;
+      const auto it = std::find_if(Fields().begin(), Fields().end(), [&](const ThresholdField& f) {
+        return check_name == f.check && field_name == f.field;
+      });
       if (it == Fields().end()) {
         std::vector<std::string> known;
         for (const auto& f : Fields()) known.push_back(fmt::format("{}.{}", f.check, f.field));

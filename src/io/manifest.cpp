@@ -73,6 +73,9 @@ Manifest ParseManifest(const std::string& text, const std::string& file) {
     j = json::parse(text);
   } catch (const json::parse_error& e) {
     Bad(file, fmt::format("not valid JSON (byte {}: {})", e.byte, std::string(e.what()).substr(std::string(e.what()).find(':') + 2)));
+  } catch (const json::exception& e) {
+    // The parser also throws out_of_range (406) for a number beyond double range, e.g. 2e+308.
+    Bad(file, fmt::format("not valid JSON ({})", std::string(e.what()).substr(std::string(e.what()).find(']') + 2)));
   }
   if (!j.is_object()) Bad(file, "the manifest must be a JSON object");
   Manifest m;

@@ -45,12 +45,18 @@ std::string MemberName(const char* raw) {
   return name;
 }
 
-NdArray ReadMember(zip_t* z, zip_uint64_t index, const std::string& where) {
+// `archive_bytes` is the real size of the archive: libzip takes the directory's sizes on trust.
+NdArray ReadMember(zip_t* z, zip_uint64_t index, const std::string& where, std::uint64_t archive_bytes) {
   zip_stat_t st;
   zip_stat_init(&st);
   if (zip_stat_index(z, index, 0, &st) != 0) raise(ExitCode::kBadData, "{}: cannot read the member's directory entry", where);
   const std::uint64_t size = (st.valid & ZIP_STAT_SIZE) ? st.size : 0;
   const std::uint64_t comp = (st.valid & ZIP_STAT_COMP_SIZE) ? st.comp_size : 0;
+  // Bounding the compressed size by the archive's bytes bounds the claimed size by the ratio
+  // check below, so a small file cannot make the payload buffer large.
+  if (comp > archive_bytes) {
+    raise(ExitCode::kBadData, "{}: archive claims {} compressed bytes but holds only {} (corrupt archive)", where, comp, archive_bytes);
+  }
   if (size > comp * kMaxDeflateRatio + 4096) {
     raise(ExitCode::kBadData, "{}: archive claims {} bytes from {} compressed bytes (corrupt archive)", where, size, comp);
   }
@@ -77,20 +83,43 @@ NdArray ReadMember(zip_t* z, zip_uint64_t index, const std::string& where) {
   return ParseNpy(std::string_view(bytes.data(), static_cast<std::size_t>(need)), where);
 }
 
+ArrayMap ReadMembers(zip_t* z, const std::string& file, std::uint64_t archive_bytes) {
+  ArrayMap arrays;
+  const zip_int64_t n = zip_get_num_entries(z, 0);
+  for (zip_int64_t i = 0; i < n; ++i) {
+    const char* raw = zip_get_name(z, static_cast<zip_uint64_t>(i), 0);
+    if (raw == nullptr) continue;
+    const std::string name = MemberName(raw);
+    const std::string where = fmt::format("{} (member '{}')", file, name);
+    arrays[name] = ReadMember(z, static_cast<zip_uint64_t>(i), where, archive_bytes);
+  }
+  return arrays;
+}
+
 }  // namespace
 
 ArrayMap ReadNpz(const std::filesystem::path& path) {
   ZipPtr z = OpenArchive(path);
-  ArrayMap arrays;
-  const zip_int64_t n = zip_get_num_entries(z.get(), 0);
-  for (zip_int64_t i = 0; i < n; ++i) {
-    const char* raw = zip_get_name(z.get(), static_cast<zip_uint64_t>(i), 0);
-    if (raw == nullptr) continue;
-    const std::string name = MemberName(raw);
-    const std::string where = fmt::format("{} (member '{}')", path.string(), name);
-    arrays[name] = ReadMember(z.get(), static_cast<zip_uint64_t>(i), where);
+  std::error_code ec;
+  const std::uint64_t archive_bytes = std::filesystem::file_size(path, ec);
+  if (ec) raise(ExitCode::kBadData, "{}: cannot read the file size ({})", path.string(), ec.message());
+  return ReadMembers(z.get(), path.string(), archive_bytes);
+}
+
+ArrayMap ParseNpz(std::string_view bytes, const std::string& where) {
+  zip_error_t ze;
+  zip_error_init(&ze);
+  zip_source_t* src = zip_source_buffer_create(bytes.data(), bytes.size(), 0, &ze);
+  zip_t* z = src ? zip_open_from_source(src, ZIP_RDONLY, &ze) : nullptr;
+  if (z == nullptr) {
+    if (src) zip_source_free(src);  // still ours: zip_open_from_source failed
+    std::string why = zip_error_strerror(&ze);
+    zip_error_fini(&ze);
+    raise(ExitCode::kBadData, "{}: not a readable .npz archive ({}; truncated or not a zip file?)", where, why);
   }
-  return arrays;
+  zip_error_fini(&ze);
+  ZipPtr owned(z);
+  return ReadMembers(owned.get(), where, bytes.size());
 }
 
 std::vector<std::string> ListNpz(const std::filesystem::path& path) {
