@@ -12,6 +12,7 @@
 #include <string>
 #include <vector>
 
+#include <Eigen/Cholesky>
 #include <catch2/catch.hpp>
 #include <nlohmann/json.hpp>
 
@@ -177,8 +178,12 @@ TEST_CASE("audit --format json writes the contract's report and exits with its v
     CHECK(c.at("detail").is_object());
     if (c.contains("p_value")) CHECK(IsNumberOrNull(c.at("p_value")));
   }
-  CHECK(names == std::set<std::string>{"gradient-decay", "support-spread", "residual-fit", "loss-plateau"});
-  CHECK(j.at("checks").size() == 4);
+  // The contract's four checks come first, in its order; plaudit's extensions follow.
+  CHECK(names == std::set<std::string>{"gradient-decay", "support-spread", "residual-fit", "loss-plateau", "curvature",
+                                       "layer-degeneracy", "two-way-diversity"});
+  REQUIRE(j.at("checks").size() == 7);
+  const char* contract_order[] = {"gradient-decay", "support-spread", "residual-fit", "loss-plateau"};
+  for (std::size_t i = 0; i < 4; ++i) CHECK(j.at("checks")[i].at("name") == contract_order[i]);
 
   // The text report reaches the same verdict: same exit code.
   CHECK(RunPlaudit({"audit", run.string()}).exit_code == r.exit_code);
@@ -275,6 +280,52 @@ TEST_CASE("train then inspect: the logged losses equal the losses recomputed fro
   }
   CHECK(steps == std::vector<std::int64_t>{0, 20, 40, 60});
   CHECK(j.at("scalar_records") == 4);
+}
+
+TEST_CASE("train --widths \"\" trains a linear model; a malformed width list exits 64 naming --widths", "[cli]") {
+  TempDir dir("cli-train-linear");
+  const fs::path data = dir / "data.npz";
+  REQUIRE(RunPlaudit({"synth", "-o", data.string(), "--teacher", "smooth", "--dim", "3", "--width", "2", "--rows", "100",
+                      "--seed", "3"})
+              .exit_code == 0);
+  const fs::path run = dir / "run";
+  const ProcessResult r = RunPlaudit({"train", data.string(), "-o", run.string(), "--widths", "", "--steps", "300",
+                                      "--save-every", "100", "--lr", "0.5", "-q"});
+  INFO(Describe(r));
+  REQUIRE(r.exit_code == 0);
+  const plaudit::io::RunDir rd(run);
+  REQUIRE(rd.manifest().layers.size() == 1);
+  CHECK(rd.manifest().layers[0].weight == "head.weight");
+  CHECK(rd.manifest().layers[0].activation == plaudit::model::Activation::kIdentity);
+  CHECK_FALSE(rd.manifest().layers[0].bias.has_value());  // no output bias by default
+  // Gradient descent on the squared loss of y ~ w . x (no bias) converges to the least-squares
+  // solution of the normal equations X^T X w = X^T y (Gauss): with x ~ N(0, I_3) the Hessian
+  // X^T X / N has eigenvalues near 1, so 300 steps at lr 0.5 leave an error far below 1e-10.
+  const auto arrays = plaudit::io::ReadNpz(run / "data.npz");
+  const Eigen::MatrixXd x = arrays.at("x").AsMatrix("x");
+  const Eigen::VectorXd y = Eigen::Map<const Eigen::VectorXd>(arrays.at("y").values.data(), x.rows());
+  const Eigen::VectorXd w_ls = (x.transpose() * x).ldlt().solve(x.transpose() * y);
+  const auto snaps = rd.Snapshots();
+  REQUIRE(snaps.size() == 4);
+  REQUIRE(snaps.back().step == 300);
+  const Eigen::MatrixXd w = rd.ReadSnapshot(snaps.back()).at("head.weight").AsMatrix("head.weight");
+  REQUIRE(w.rows() == 1);
+  REQUIRE(w.cols() == 3);
+  CHECK((w.row(0).transpose() - w_ls).cwiseAbs().maxCoeff() <= 1e-10 * (1.0 + w_ls.cwiseAbs().maxCoeff()));
+  const ProcessResult inspect = RunPlaudit({"inspect", run.string(), "--format", "json"});
+  INFO(Describe(inspect));
+  REQUIRE(inspect.exit_code == 0);
+  CHECK(ParseJson(inspect).at("parameters") == 3);
+
+  // An empty entry, a zero, a negative or a non-number: usage error naming the option, nothing written.
+  for (const std::string widths : {"8,,4", ",", "0", "-3", "8x"}) {
+    const fs::path out = dir / "bad";
+    const ProcessResult bad = RunPlaudit({"train", data.string(), "-o", out.string(), "--widths", widths, "-q"});
+    INFO(Describe(bad));
+    CHECK(bad.exit_code == 64);
+    CheckOneLineError(bad, {"--widths", "'" + widths + "'"});
+    CHECK_FALSE(fs::exists(out));
+  }
 }
 
 TEST_CASE("synth writes x and y of the requested shapes, y from the planted teacher", "[cli]") {

@@ -1,11 +1,14 @@
 #include <unistd.h>
 
+#include <algorithm>
+#include <charconv>
 #include <chrono>
 #include <iostream>
 #include <memory>
 #include <optional>
 
 #include <fmt/core.h>
+#include <fmt/format.h>
 
 #include "cli/audit_args.h"
 #include "cli/commands.h"
@@ -30,6 +33,7 @@ struct TrainArgs {
   std::string loss = "squared";
   std::string init = "gaussian";
   std::string radius_law = "fixed";
+  std::string widths;  // --widths as typed; see ParseWidths
   bool no_hidden_bias = false;
   bool watch = false;
   std::string stop_on;
@@ -53,8 +57,34 @@ model::Dataset LoadTrainingData(const TrainArgs& a) {
   return model::ReadDataset(path, *model::LossFromString(a.loss), 0);
 }
 
+// --widths: hidden widths separated by commas; an empty or blank value means no hidden layer
+// (a linear model). Parsed here because CLI11 reads an empty string as one width of 0.
+std::vector<Eigen::Index> ParseWidths(const std::string& text) {
+  constexpr const char* kBlank = " \t";
+  std::vector<Eigen::Index> widths;
+  if (text.find_first_not_of(kBlank) == std::string::npos) return widths;
+  for (std::size_t start = 0;;) {
+    const std::size_t comma = std::min(text.find(',', start), text.size());
+    const std::size_t first = std::min(text.find_first_not_of(kBlank, start), comma);
+    std::size_t last = comma;
+    while (last > first && (text[last - 1] == ' ' || text[last - 1] == '\t')) --last;
+    const char* begin = text.data() + first;
+    const char* end = text.data() + last;
+    long long value = 0;
+    const auto [ptr, ec] = std::from_chars(begin, end, value);
+    if (begin == end || ec != std::errc() || ptr != end || value < 1) {
+      raise(ExitCode::kUsage, "--widths: '{}' is not a list of positive integers such as 64,64 (\"\" for a linear model)",
+            text);
+    }
+    widths.push_back(static_cast<Eigen::Index>(value));
+    if (comma == text.size()) return widths;
+    start = comma + 1;
+  }
+}
+
 void ResolveEnums(TrainArgs& a) {
   train::TrainOptions& o = a.options;
+  o.widths = ParseWidths(a.widths);
   o.activation = *model::ActivationFromString(a.activation);
   o.parameterization = a.parameterization == "standard" ? io::Parameterization::kStandard : io::Parameterization::kMeanField;
   o.loss = *model::LossFromString(a.loss);
@@ -150,7 +180,8 @@ Command AddTrainCommand(CLI::App& parent) {
   app->add_option("-o,--out", a->out, "Run directory to write")->required();
   app->add_option("--target", a->targets, "CSV target column(s); default: the last column")->delimiter(',');
   app->add_option("--inputs", a->inputs, "CSV input columns; default: every other column")->delimiter(',');
-  app->add_option("--widths", o.widths, "Hidden layer widths, e.g. 64,64 (empty list: linear model)")->delimiter(',')->capture_default_str();
+  a->widths = fmt::format("{}", fmt::join(o.widths, ","));
+  app->add_option("--widths", a->widths, "Hidden layer widths, e.g. 64,64 (\"\": no hidden layer, a linear model)")->capture_default_str();
   app->add_option("--activation", a->activation, "Hidden activation")
       ->check(CLI::IsMember({"identity", "relu", "leaky_relu", "tanh", "sigmoid", "softplus", "gelu"}))->capture_default_str();
   app->add_option("--param", a->parameterization, "Parameterization")->check(CLI::IsMember({"mean-field", "standard"}))->capture_default_str();
@@ -164,7 +195,7 @@ Command AddTrainCommand(CLI::App& parent) {
   app->add_option("--save-every", o.save_every, "Snapshot every this many steps (0: first and last only)")->check(CLI::NonNegativeNumber)->capture_default_str();
   app->add_option("--log-every", o.log_every, "Also log the loss every this many steps")->check(CLI::NonNegativeNumber);
   app->add_option("--seed", o.seed, "Seed of the initial weights and minibatch order")->capture_default_str();
-  app->add_option("--init", a->init, "Initialisation")->check(CLI::IsMember({"gaussian", "sphere", "collapsed"}))->capture_default_str();
+  app->add_option("--init", a->init, "Initialisation")->check(CLI::IsMember({"gaussian", "sphere", "collapsed", "latent"}))->capture_default_str();
   app->add_option("--init-gain", o.init.gain, "Gaussian std factor")->check(CLI::PositiveNumber)->capture_default_str();
   app->add_option("--init-scale", o.init.scale, "Multiplies every initial weight (small init: << 1)")->check(CLI::PositiveNumber)->capture_default_str();
   app->add_option("--radius-law", a->radius_law, "sphere: norm of first-layer rows")->check(CLI::IsMember({"fixed", "log-uniform"}))->capture_default_str();
@@ -173,6 +204,14 @@ Command AddTrainCommand(CLI::App& parent) {
   app->add_option("--radius-max", o.init.radius_max, "sphere, log-uniform law: largest norm")->check(CLI::PositiveNumber);
   app->add_option("--clusters", o.init.clusters, "collapsed: number of groups of identical first-layer neurons")->check(CLI::PositiveNumber)->capture_default_str();
   app->add_option("--jitter", o.init.jitter, "collapsed: noise std added to the copies (0: exact copies)")->check(CLI::NonNegativeNumber);
+  app->add_option("--latent-dim", o.init.latent.latent_dim, "latent: dimension of each neuron's latent point")
+      ->check(CLI::Range(1, 64))->capture_default_str();
+  app->add_option("--latent-features", o.init.latent.features, "latent: random Fourier features per layer's smooth map")
+      ->check(CLI::Range(1, 4096))->capture_default_str();
+  app->add_option("--latent-lengthscale", o.init.latent.lengthscale, "latent: length scale of the smooth maps")
+      ->check(CLI::PositiveNumber)->capture_default_str();
+  app->add_option("--bias-std", o.init.bias_std, "Initial biases i.i.d. N(0, std^2) in layers with biases (0: zero biases)")
+      ->check(CLI::NonNegativeNumber)->capture_default_str();
   app->add_option("--freeze", o.frozen_layers, "Layers held fixed, 0-based; -1 is the output layer")->delimiter(',');
   app->add_option("--train-threads", o.threads, "Worker threads for the gradient (results do not depend on it)")->check(CLI::PositiveNumber);
   app->add_flag("--overwrite", o.overwrite, "Replace the run files of a non-empty output directory");
