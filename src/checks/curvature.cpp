@@ -9,6 +9,7 @@
 #include <fmt/format.h>
 
 #include "plaudit/core/error.h"
+#include "plaudit/model/neuron_ties.h"
 #include "plaudit/stats/lanczos.h"
 
 namespace plaudit::checks {
@@ -113,6 +114,24 @@ std::vector<LayerMass> MassByLayer(const model::ParameterLayout& layout, const E
   return out;
 }
 
+nlohmann::json TiedGroups(const std::vector<model::NeuronTies>& ties) {
+  nlohmann::json out = nlohmann::json::array();
+  for (const auto& t : ties) {
+    for (const auto& g : t.groups) out.push_back({{"layer", t.layer + 1}, {"size", g.size()}});
+  }
+  return out;
+}
+
+// How the message says the search was restricted, or nothing.
+std::string TiesNote(const std::vector<model::NeuronTies>& ties) {
+  if (ties.empty()) return {};
+  std::size_t groups = 0;
+  for (const auto& t : ties) groups += t.groups.size();
+  return fmt::format(", along the directions gradient descent can take ({} hidden neurons are exact copies in {} "
+                     "group(s) and stay so)",
+                     model::TiedNeuronCount(ties), groups);
+}
+
 }  // namespace
 
 bool CurvatureOptions::IsValid(std::string* why) const {
@@ -133,6 +152,7 @@ bool CurvatureOptions::IsValid(std::string* why) const {
   }
   if (line_search_steps < 1) return fail("line_search_steps must be at least 1");
   if (block_rows < 1) return fail("block_rows must be at least 1");
+  if (!(tie_tolerance >= 0.0) || !std::isfinite(tie_tolerance)) return fail("tie_tolerance must be >= 0 and finite");
   return true;
 }
 
@@ -175,6 +195,11 @@ CheckResult RunCurvature(const model::Network& last, const model::Dataset& data,
     return skip("the loss or its gradient is not finite at the last snapshot");
   }
 
+  const std::vector<model::NeuronTies> ties =
+      options.respect_ties ? model::FindNeuronTies(last, options.tie_tolerance) : std::vector<model::NeuronTies>{};
+  const bool restricted = !ties.empty();
+  Eigen::VectorXd projected;
+
   stats::LanczosOptions lo;
   lo.max_iterations = options.max_iterations;
   lo.tolerance = options.tolerance;
@@ -183,7 +208,14 @@ CheckResult RunCurvature(const model::Network& last, const model::Dataset& data,
   bool finite_products = true;
   const stats::LanczosResult eig = stats::LanczosExtremes(
       [&](const Eigen::VectorXd& in, Eigen::VectorXd& out) {
-        hessian.Apply(in, out);
+        if (restricted) {  // P H P: only directions that keep tied neurons tied
+          projected = in;
+          model::ProjectOntoTies(layout, ties, projected);
+          hessian.Apply(projected, out);
+          model::ProjectOntoTies(layout, ties, out);
+        } else {
+          hessian.Apply(in, out);
+        }
         if (!out.allFinite()) {
           finite_products = false;
           out.setZero();  // ends the iteration as an invariant subspace; the result is skipped below
@@ -196,7 +228,13 @@ CheckResult RunCurvature(const model::Network& last, const model::Dataset& data,
   const double ratio = lmax > 0.0 ? lmin / lmax : std::numeric_limits<double>::quiet_NaN();
   const bool negative = lmin < -options.threshold * lmax;
   const double target = options.min_decrease_rel * baseline_loss;
-  const Eigen::VectorXd& v = eig.min_vector;
+  Eigen::VectorXd v = eig.min_vector;
+  if (restricted) {
+    // The start vector's part outside the tie-keeping directions can linger in a Ritz vector; it
+    // adds nothing to v.Hv under P H P, so dropping it keeps lambda_min an upper bound along v.
+    model::ProjectOntoTies(layout, ties, v);
+    if (v.norm() > 0.0) v.normalize();
+  }
 
   EscapeSearch escape;
   const bool searched = lmin < 0.0;
@@ -253,7 +291,10 @@ CheckResult RunCurvature(const model::Network& last, const model::Dataset& data,
               {"eigenvector_mass", masses},
               {"dominant_layer", dominant1},
               {"dominant_part", dominant_part},
-              {"saddle", saddle}};
+              {"saddle", saddle},
+              {"restricted_to_ties", restricted},
+              {"tied_neurons", model::TiedNeuronCount(ties)},
+              {"tied_groups", TiedGroups(ties)}};
   if (searched) {
     const Probe& b = escape.best;
     const bool any = std::isfinite(b.decrease);
@@ -298,6 +339,7 @@ CheckResult RunCurvature(const model::Network& last, const model::Dataset& data,
                             threshold);
     if (!eig.converged) r.message += fmt::format(", not converged after {}", cost);
   }
+  r.message += TiesNote(ties);
   return r;
 }
 

@@ -55,6 +55,15 @@ void FillCollapsed(model::Network& net, io::Parameterization p, const InitOption
   next.weight = CopyRows(out_centres, width, o.jitter, rng).transpose();
 }
 
+// Random biases, when asked for: after every weight, so they do not shift the weights' draws.
+void DrawBiases(model::Network& net, double bias_std, std::mt19937_64& rng) {
+  if (bias_std <= 0.0) return;
+  for (auto& layer : net.layers) {
+    if (!layer.has_bias) continue;
+    for (Eigen::Index i = 0; i < layer.fan_out(); ++i) layer.bias(i) = bias_std * StandardNormal(rng);
+  }
+}
+
 }  // namespace
 
 const char* InitSchemeToString(InitScheme s) {
@@ -62,6 +71,7 @@ const char* InitSchemeToString(InitScheme s) {
     case InitScheme::kGaussian: return "gaussian";
     case InitScheme::kSphere: return "sphere";
     case InitScheme::kCollapsed: return "collapsed";
+    case InitScheme::kLatent: return "latent";
   }
   return "?";
 }
@@ -70,6 +80,7 @@ std::optional<InitScheme> InitSchemeFromString(const std::string& name) {
   if (name == "gaussian") return InitScheme::kGaussian;
   if (name == "sphere") return InitScheme::kSphere;
   if (name == "collapsed") return InitScheme::kCollapsed;
+  if (name == "latent") return InitScheme::kLatent;
   return std::nullopt;
 }
 
@@ -85,6 +96,12 @@ void ValidateInitOptions(const InitOptions& o, Eigen::Index first_layer_width) {
       raise(ExitCode::kUsage, "sphere radius range needs 0 < min <= max, got [{}, {}]", o.radius_min, o.radius_max);
     }
   }
+  if (!(o.bias_std >= 0.0) || !std::isfinite(o.bias_std)) {
+    raise(ExitCode::kUsage, "bias std must be >= 0, got {}", o.bias_std);
+  }
+  if (o.scheme == InitScheme::kLatent) {
+    if (std::string why; !o.latent.IsValid(&why)) raise(ExitCode::kUsage, "latent initialisation: {}", why);
+  }
   if (o.scheme == InitScheme::kCollapsed) {
     if (o.clusters < 1 || o.clusters > first_layer_width) {
       raise(ExitCode::kUsage, "clusters must be between 1 and the first layer's width {}, got {}", first_layer_width,
@@ -97,6 +114,14 @@ void ValidateInitOptions(const InitOptions& o, Eigen::Index first_layer_width) {
 void InitializeWeights(model::Network& net, io::Parameterization p, const InitOptions& o, std::mt19937_64& rng) {
   ValidateInitOptions(o, net.layers.front().fan_out());
   int first_gaussian = 0;
+  if (o.scheme == InitScheme::kLatent) {
+    LatentInitOptions latent = o.latent;
+    latent.gain = o.gain;
+    latent.scale = o.scale;
+    InitializeLatent(net, p, latent, rng());
+    DrawBiases(net, o.bias_std, rng);
+    return;
+  }
   if (o.scheme == InitScheme::kSphere) {
     FillSphere(net.layers.front(), o, rng);
     first_gaussian = 1;
@@ -109,6 +134,7 @@ void InitializeWeights(model::Network& net, io::Parameterization p, const InitOp
     layer.weight *= o.scale;
     layer.bias.setZero(layer.fan_out());
   }
+  DrawBiases(net, o.bias_std, rng);
 }
 
 }  // namespace plaudit::train

@@ -27,6 +27,13 @@
 // local to lower the loss by D). A pass after an unconverged iteration is reported with
 // detail.converged = false: a lower lambda_min(H) may exist.
 //
+// Tied neurons. Hidden neurons that are exact copies (model/neuron_ties.h: incoming row, bias
+// and outgoing column equal to tie_tolerance) stay copies under gradient descent, so a direction
+// that pulls them apart is one training never takes. When there are such ties the iteration
+// runs on P H P, P the projection onto the directions that move every copy alike: a collapsed
+// network "at a saddle" of the full parameter space that gradient descent cannot leave is then
+// not reported as one. detail: tied_neurons, tied_groups, restricted_to_ties.
+//
 // Skips, with a reason, when the chosen layers hold more than max_parameters parameters
 // (Lanczos keeps max_iterations vectors of that length: 40 x 10^6 doubles = 320 MB), when every
 // chosen layer is held fixed, when L0 = 0, or when the loss or gradient is not finite.
@@ -62,6 +69,8 @@ struct CurvatureOptions {
   int line_search_steps = 5;      // doublings of the escape step tried per sign; >= 1
   model::HessianMethod method = model::HessianMethod::kExact;
   Eigen::Index block_rows = 1024; // rows per block; >= 1
+  double tie_tolerance = 1e-12;   // neurons tied when they differ by <= this x their largest entry; >= 0
+  bool respect_ties = true;       // restrict to tie-keeping directions when ties exist
   bool record_seconds = true;     // detail.seconds and detail.lanczos_seconds (not reproducible)
   std::uint64_t seed = 0;         // Lanczos start vector
   bool IsValid(std::string* why) const;

@@ -1,5 +1,5 @@
 #pragma once
-// Initial weights for the built-in trainer. Three schemes:
+// Initial weights for the built-in trainer. Four schemes:
 //   gaussian   i.i.d. N(0, sigma^2) entries in every layer; standard parameterization
 //              sigma = gain / sqrt(fan_in), mean-field sigma = gain (the 1/n of the next layer's
 //              multiplier does the averaging, so entries stay O(1));
@@ -8,22 +8,27 @@
 //   collapsed  first-layer neurons in `clusters` groups of identical neurons (row of W_1, bias and
 //              outgoing column of W_2 all copied), so gradient descent keeps them identical unless
 //              `jitter` breaks the tie; the cluster centres and later layers are gaussian.
+//   latent     the neuronal-embedding initialisation of latent_init.h: weights are smooth random
+//              functions of latent points of the neurons they join, so deep networks keep their
+//              neurons diverse in both directions (gain and scale as above).
 // Every weight is finally multiplied by `scale` (small-initialisation runs: scale << 1).
-// Biases start at zero. Draws come from an explicit engine (draws.h), so a seed fixes the network.
+// Biases start at zero, or with bias_std > 0 as i.i.d. N(0, bias_std^2) in every layer that has
+// one (drawn after the weights, so bias_std = 0 leaves the weights of a seed unchanged). Draws come from an explicit engine (draws.h), so a seed fixes the network.
 #include <optional>
 #include <random>
 #include <string>
 
 #include "plaudit/io/manifest.h"
 #include "plaudit/model/network.h"
+#include "plaudit/train/latent_init.h"
 
 namespace plaudit::train {
 
-enum class InitScheme { kGaussian, kSphere, kCollapsed };
+enum class InitScheme { kGaussian, kSphere, kCollapsed, kLatent };
 enum class RadiusLaw { kFixed, kLogUniform };
 
 const char* InitSchemeToString(InitScheme s);
-std::optional<InitScheme> InitSchemeFromString(const std::string& name);  // gaussian, sphere, collapsed
+std::optional<InitScheme> InitSchemeFromString(const std::string& name);  // gaussian, sphere, collapsed, latent
 
 struct InitOptions {
   InitScheme scheme = InitScheme::kGaussian;
@@ -40,6 +45,9 @@ struct InitOptions {
   // collapsed: std of N(0, jitter^2) noise added to every copied weight (before `scale`);
   // 0 keeps exact copies. Must be >= 0.
   double jitter = 0.0;
+  // latent: the embedding's settings; its gain and scale are replaced by the two above.
+  LatentInitOptions latent;
+  double bias_std = 0.0;  // >= 0; see above
 };
 
 // Throws Error(kUsage) naming the offending field when a value is out of its documented range.
