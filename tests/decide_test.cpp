@@ -1,6 +1,8 @@
 // The verdict rules of the checks issue, one case per row of the rule table in
 // include/plaudit/audit/decide.h. The rules themselves are the project's specification;
 // the inputs are synthetic check results.
+#include <cmath>
+
 #include <catch2/catch.hpp>
 
 #include "plaudit/audit/decide.h"
@@ -29,10 +31,18 @@ struct Case {
   CheckResult plateau = Result("loss-plateau", Status::kPass, 1e-4, 1e-2);
   CheckResult residual = Result("residual-fit", Status::kPass, 1e-3, 1e-2, 0.4);
   CheckResult spread = Result("support-spread", Status::kPass, 1.1, 2.0);
+  CheckResult curvature = Result("curvature", Status::kPass, 0.01, -1e-3);
+  CheckResult degeneracy = Result("layer-degeneracy", Status::kSkip, std::nan(""), 0.95);
+  CheckResult two_way = Result("two-way-diversity", Status::kSkip, std::nan(""), 2.0);
   double loss = 0.1, l0 = 1.0;
+  int depth = 2;
 
   plaudit::audit::Decision Run() {
     DecisionInputs in;
+    in.curvature = &curvature;
+    in.layer_degeneracy = &degeneracy;
+    in.two_way_diversity = &two_way;
+    in.depth = depth;
     in.last_loss = loss;
     in.baseline_loss = l0;
     in.gradient_decay = &grad;
@@ -138,4 +148,71 @@ TEST_CASE("residual explained but negligible: global, and the summary says why",
   CHECK(d.verdict == Verdict::kGlobal);
   CHECK(d.summary.find("below the floor") != std::string::npos);
   CHECK(d.summary.find("chance") == std::string::npos);
+}
+
+TEST_CASE("explained residual at a saddle: moving, naming the layer the escape runs through", "[verdict]") {
+  Case c;
+  c.residual = Result("residual-fit", Status::kFail, 0.2, 1e-2, 0.005);
+  c.curvature = Result("curvature", Status::kFail, -0.05, -1e-3);
+  c.curvature.detail = {{"ratio", -0.05}, {"dominant_layer", 1}, {"dominant_part", "weights"},
+                        {"escape", {{"actual_decrease_rel", 0.004}}}};
+  auto d = c.Run();
+  CHECK(d.verdict == Verdict::kMoving);
+  CHECK(d.summary.find("saddle") != std::string::npos);
+  CHECK(d.summary.find("layer 1's weights") != std::string::npos);
+  CHECK(d.summary.find("0.004 x L0") != std::string::npos);
+  SECTION("a saddle does not overrule an unexplained residual") {
+    c.residual = Result("residual-fit", Status::kPass, 1e-3, 1e-2, 0.4);
+    CHECK(c.Run().verdict == Verdict::kGlobal);
+  }
+  SECTION("a skipped curvature check is not needed for a verdict") {
+    c.curvature = Result("curvature", Status::kSkip, std::nan(""), -1e-3);
+    CHECK(c.Run().verdict == Verdict::kSpurious);
+  }
+}
+
+TEST_CASE("exact copies of neurons: spurious, and the advice says copies never separate", "[verdict]") {
+  Case c;
+  c.residual = Result("residual-fit", Status::kFail, 0.7, 1e-2, 0.005);
+  c.curvature.detail = {{"tied_neurons", 32}, {"restricted_to_ties", true}};
+  const auto d = c.Run();
+  CHECK(d.verdict == Verdict::kSpurious);
+  CHECK(d.summary.find("32 hidden neurons are exact copies") != std::string::npos);
+}
+
+TEST_CASE("a degenerate middle layer of a deep network: named in the spurious advice, a warning when global",
+          "[verdict]") {
+  Case c;
+  c.depth = 4;
+  c.degeneracy = Result("layer-degeneracy", Status::kFail, 0.99, 0.95);
+  c.degeneracy.detail = {{"worst_layer", 2}};
+  c.residual = Result("residual-fit", Status::kFail, 0.2, 1e-2, 0.005);
+  auto d = c.Run();
+  CHECK(d.verdict == Verdict::kSpurious);
+  CHECK(d.summary.find("layer 2's neurons compute nearly one function") != std::string::npos);
+  CHECK(d.summary.find("--init latent") != std::string::npos);
+  SECTION("global: the verdict stands, with a warning") {
+    c.residual = Result("residual-fit", Status::kPass, 1e-3, 1e-2, 0.4);
+    d = c.Run();
+    CHECK(d.verdict == Verdict::kGlobal);
+    CHECK(d.summary.find("Warning: layer 2's neurons") != std::string::npos);
+  }
+  SECTION("below depth 4 the rule does not apply") {
+    c.depth = 3;
+    d = c.Run();
+    CHECK(d.verdict == Verdict::kSpurious);
+    CHECK(d.summary.find("nearly one function") == std::string::npos);
+  }
+}
+
+TEST_CASE("no hidden layer: a convex loss, so an explained residual is still global", "[verdict]") {
+  // A linear model's squared loss is convex in its weights: every stationary point is its global
+  // minimum (a fact of least squares), whatever fresh nonlinear features could add.
+  Case c;
+  c.depth = 1;
+  c.residual = Result("residual-fit", Status::kFail, 0.3, 1e-2, 0.005);
+  const auto d = c.Run();
+  CHECK(d.verdict == Verdict::kGlobal);
+  CHECK(d.summary.find("convex") != std::string::npos);
+  CHECK(d.summary.find("add a hidden layer") != std::string::npos);
 }

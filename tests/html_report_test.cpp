@@ -472,9 +472,11 @@ TEST_CASE("html: the page of a trained run is well-formed, self-contained and sh
   const TrainedRun& t = SmallRun();
   const plaudit::io::RunDir run(t.run);
   const plaudit::audit::AuditReport report = plaudit::audit::RunAudit(run, t.options);
-  for (const auto& c : report.checks) {
-    INFO(c.name << ": " << c.message);
-    REQUIRE(c.ran());
+  for (const char* name : {"gradient-decay", "support-spread", "residual-fit", "loss-plateau"}) {
+    const auto* c = report.Find(name);
+    REQUIRE(c != nullptr);
+    INFO(c->name << ": " << c->message);
+    REQUIRE(c->ran());
   }
   plaudit::report::HtmlOptions html_options;
   html_options.directions = plaudit::report::DirectionMapForRun(run, report, t.options);
@@ -522,8 +524,9 @@ TEST_CASE("html: the page of a trained run is well-formed, self-contained and sh
       CHECK(TickTexts(*inner[0]).size() >= 4);
       CHECK_FALSE(inner[0]->All("title").empty());
     }
+    // The run has three layers: the deep-layer bars (issue: mean |corr| per hidden layer) are drawn.
     CHECK(ids == std::set<std::string>{"loss", "gradient", "gradient-layers", "gradient-decay-bars", "directions-first",
-                                       "directions-last", "residual-null"});
+                                       "directions-last", "residual-null", "layer-degeneracy"});
   }
 
   SECTION("the banner and the checks table hold the JSON report's values") {
@@ -539,7 +542,7 @@ TEST_CASE("html: the page of a trained run is well-formed, self-contained and sh
     CHECK(std::stoi(ByAttr(banner->All("td"), "data-field", "gradient_layer")->Attr("data-value")) == j["gradient_layer"].get<int>());
 
     const auto rows = root->All("tr");
-    REQUIRE(j["checks"].size() == 4);
+    REQUIRE(j["checks"].size() == 7);
     for (const auto& c : j["checks"]) {
       const std::string name = c["name"].get<std::string>();
       INFO(name);
@@ -583,6 +586,14 @@ TEST_CASE("html: the page of a trained run is well-formed, self-contained and sh
     std::size_t bars = 0;
     for (const Node* r : chart("gradient-decay-bars")->All("rect")) bars += r->HasClass("bar");
     CHECK(bars == j["trajectory"]["points"][0]["gradient"].size());
+
+    // One bar per hidden layer after the first, with the degeneracy threshold drawn.
+    const json degeneracy = check_of("layer-degeneracy");
+    std::size_t corr_bars = 0;
+    for (const Node* r : chart("layer-degeneracy")->All("rect")) corr_bars += r->HasClass("bar");
+    CHECK(corr_bars == degeneracy["detail"]["layers"].size());
+    CHECK(std::stod(ByAttr(chart("layer-degeneracy")->All("line"), "data-name", "degeneracy threshold")->Attr("data-value")) ==
+          degeneracy["threshold"].get<double>());
 
     const Node* null = chart("residual-null");
     long long counted = 0;

@@ -77,7 +77,11 @@ double ConstantPredictorLoss(const Eigen::MatrixXd& y) {
   return 0.5 * (y.col(0).array() - mean).square().mean();
 }
 
-bool RelClose(double a, double b, double rel) { return std::abs(a - b) <= rel * std::max(std::abs(a), std::abs(b)); }
+// NaN (a skipped check's statistic) is close only to NaN.
+bool RelClose(double a, double b, double rel) {
+  if (std::isnan(a) || std::isnan(b)) return std::isnan(a) && std::isnan(b);
+  return std::abs(a - b) <= rel * std::max(std::abs(a), std::abs(b));
+}
 
 std::map<std::int64_t, std::string> ScalarLines(const fs::path& file) {
   std::map<std::int64_t, std::string> lines;

@@ -59,10 +59,10 @@ Trajectory TrajectoryForLayer(const io::RunDir& run, const Inputs& in, const Aud
   TrajectoryOptions t;
   t.block_rows = options.block_rows;
   t.threads = options.threads;
-  t.lowest_grad_layer = layer;
+  t.lowest_grad_layer = options.all_layer_gradients ? 0 : layer;
   Trajectory traj = ComputeTrajectory(run, in.snaps, in.data ? &*in.data : nullptr, t);
   const int resolved = checks::ResolveGradientLayer(options.gradient_decay, depth, traj.frozen);
-  if (resolved < layer) {
+  if (resolved < t.lowest_grad_layer) {
     t.lowest_grad_layer = resolved;
     std::vector<bool> frozen = traj.frozen;
     traj = ComputeTrajectory(run, in.snaps, in.data ? &*in.data : nullptr, t);
@@ -112,8 +112,48 @@ checks::SupportSpreadOptions Seeded(checks::SupportSpreadOptions o, std::uint64_
   return o;
 }
 
+checks::CurvatureOptions Seeded(checks::CurvatureOptions o, const AuditOptions& audit) {
+  o.seed = audit.seed ^ 0x94d049bb133111ebULL;
+  o.block_rows = audit.block_rows;
+  o.record_seconds = false;  // the report stays byte-identical across runs; the cost is in the counts
+  return o;
+}
+checks::LayerDegeneracyOptions Seeded(checks::LayerDegeneracyOptions o, const AuditOptions& audit) {
+  o.seed = audit.seed ^ 0x2545f4914f6cdd1dULL;
+  o.block_rows = audit.block_rows;
+  return o;
+}
+checks::TwoWayDiversityOptions Seeded(checks::TwoWayDiversityOptions o, std::uint64_t seed) {
+  o.seed = seed ^ 0xd6e8feb86659fd93ULL;
+  return o;
+}
+
 checks::CheckResult NeedsData(const char* name, double threshold) {
   return checks::Skipped(name, threshold, "the run has no audit data (data.npz)");
+}
+
+// Curvature under CurvatureWhen::kAtPlateau: only where the loss is flat and the judged gradient
+// has died down, the one state in which a saddle changes the verdict.
+std::optional<std::string> CurvatureNotNeeded(const AuditOptions& options, const checks::CheckResult& gradient,
+                                              const checks::CheckResult& plateau) {
+  if (options.curvature_when == CurvatureWhen::kAlways) return std::nullopt;
+  if (options.curvature_when == CurvatureWhen::kNever) return std::string("not requested (curvature: never)");
+  if (plateau.status == checks::Status::kFail) return std::string("not needed: the loss is still falling");
+  if (gradient.status == checks::Status::kFail) return std::string("not needed: the judged gradient has not decayed");
+  if (!plateau.ran() || !gradient.ran()) return std::string("not needed: the plateau could not be judged");
+  return std::nullopt;
+}
+
+checks::CheckResult CurvatureOf(const Inputs& in, const AuditOptions& options) {
+  if (!in.data) return NeedsData(checks::kCurvatureName, options.curvature.threshold);
+  return checks::RunCurvature(in.last, *in.data, in.baseline_loss, Seeded(options.curvature, options));
+}
+checks::CheckResult LayerDegeneracyOf(const Inputs& in, const AuditOptions& options) {
+  if (!in.data) return NeedsData(checks::kLayerDegeneracyName, options.layer_degeneracy.threshold);
+  return checks::RunLayerDegeneracy(in.last, &in.first, *in.data, Seeded(options.layer_degeneracy, options));
+}
+checks::CheckResult TwoWayDiversityOf(const Inputs& in, const AuditOptions& options) {
+  return checks::RunTwoWayDiversity(in.last, &in.first, Seeded(options.two_way_diversity, options.seed));
 }
 
 }  // namespace
@@ -128,7 +168,24 @@ bool AuditOptions::IsValid(std::string* why) const {
   if (block_rows < 1) return bad(fmt::format("block-rows is {}, must be >= 1", block_rows));
   if (!(global_loss_ratio >= 0.0)) return bad(fmt::format("global-loss-ratio is {}, must be >= 0", global_loss_ratio));
   return gradient_decay.IsValid(why) && support_spread.IsValid(why) && residual_fit.IsValid(why) &&
-         loss_plateau.IsValid(why);
+         loss_plateau.IsValid(why) && Seeded(curvature, *this).IsValid(why) &&
+         Seeded(layer_degeneracy, *this).IsValid(why) && two_way_diversity.IsValid(why);
+}
+
+const char* CurvatureWhenToString(CurvatureWhen w) {
+  switch (w) {
+    case CurvatureWhen::kAtPlateau: return "plateau";
+    case CurvatureWhen::kAlways: return "always";
+    case CurvatureWhen::kNever: return "never";
+  }
+  return "plateau";
+}
+
+std::optional<CurvatureWhen> CurvatureWhenFromString(const std::string& name) {
+  for (CurvatureWhen w : {CurvatureWhen::kAtPlateau, CurvatureWhen::kAlways, CurvatureWhen::kNever}) {
+    if (name == CurvatureWhenToString(w)) return w;
+  }
+  return std::nullopt;
 }
 
 const checks::CheckResult* AuditReport::Find(const std::string& name) const {
@@ -136,7 +193,10 @@ const checks::CheckResult* AuditReport::Find(const std::string& name) const {
   return nullptr;
 }
 
-std::vector<std::string> CheckNames() { return {"gradient-decay", "support-spread", "residual-fit", "loss-plateau"}; }
+std::vector<std::string> CheckNames() {
+  return {"gradient-decay", "support-spread",   "residual-fit",     "loss-plateau",
+          "curvature",      "layer-degeneracy", "two-way-diversity"};
+}
 
 AuditReport RunAudit(const io::RunDir& run, const AuditOptions& options) {
   if (std::string why; !options.IsValid(&why)) raise(ExitCode::kUsage, "{}", why);
@@ -180,6 +240,11 @@ AuditReport AuditFromTrajectory(const io::RunDir& run, const AuditInputs& in, Tr
     report.checks.push_back(in.data ? checks::RunResidualFit(in.last, *in.data, in.baseline_loss, Seeded(options.residual_fit, options.seed))
                                     : NeedsData("residual-fit", options.residual_fit.effect_threshold));
     report.checks.push_back(checks::RunLossPlateau(report.loss_series, in.baseline_loss, options.loss_plateau));
+    const auto not_needed = CurvatureNotNeeded(options, report.checks[0], report.checks[3]);
+    report.checks.push_back(not_needed ? checks::Skipped(checks::kCurvatureName, options.curvature.threshold, *not_needed)
+                                       : CurvatureOf(in, options));
+    report.checks.push_back(LayerDegeneracyOf(in, options));
+    report.checks.push_back(TwoWayDiversityOf(in, options));
   }
   d.last_loss = report.last_loss;
   d.baseline_loss = in.baseline_loss;
@@ -189,6 +254,10 @@ AuditReport AuditFromTrajectory(const io::RunDir& run, const AuditInputs& in, Tr
   d.loss_plateau = report.Find("loss-plateau");
   d.residual_fit = report.Find("residual-fit");
   d.support_spread = report.Find("support-spread");
+  d.curvature = report.Find(checks::kCurvatureName);
+  d.layer_degeneracy = report.Find(checks::kLayerDegeneracyName);
+  d.two_way_diversity = report.Find(checks::kTwoWayDiversityName);
+  d.depth = in.last.depth();
   const Decision decision = Decide(d);
   report.verdict = decision.verdict;
   report.summary = decision.summary;
@@ -210,6 +279,9 @@ checks::CheckResult RunSingleCheck(const io::RunDir& run, const std::string& nam
     return in.data ? checks::RunResidualFit(in.last, *in.data, in.baseline_loss, Seeded(options.residual_fit, options.seed))
                    : NeedsData("residual-fit", options.residual_fit.effect_threshold);
   }
+  if (name == checks::kCurvatureName) return CurvatureOf(in, options);  // asked for by name: always
+  if (name == checks::kLayerDegeneracyName) return LayerDegeneracyOf(in, options);
+  if (name == checks::kTwoWayDiversityName) return TwoWayDiversityOf(in, options);
   int layer = 0;
   const Trajectory traj = TrajectoryForLayer(run, in, options, layer);
   if (name == "gradient-decay") return checks::RunGradientDecay(traj, layer, options.gradient_decay);

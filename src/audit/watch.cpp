@@ -132,6 +132,7 @@ std::vector<WatchEvent> RunWatcher::Poll() {
         std::vector<bool> if_fixed = frozen;
         if_fixed[static_cast<std::size_t>(layer_)] = true;  // the fallback, should the layer turn out fixed
         trajectory_.lowest_grad_layer = std::min(layer_, checks::ResolveGradientLayer(options_.audit.gradient_decay, depth, if_fixed));
+        if (options_.audit.all_layer_gradients) trajectory_.lowest_grad_layer = 0;
       }
       t.lowest_grad_layer = trajectory_.lowest_grad_layer;
       point = EvaluateSnapshot(*run_, ref, inputs_.data ? &*inputs_.data : nullptr, t, &net);

@@ -167,6 +167,7 @@ bool FiniteLayer(const model::DenseLayer& layer) {
 
 std::optional<std::string> SkipReason(const model::Network& last, const model::Dataset& data) {
   if (last.layers.empty()) return std::string("the network has no layers");
+  if (last.depth() < 2) return std::string("the network has no hidden layer: its outputs are not neurons to spread");
   const model::DenseLayer& layer = last.layers.front();
   if (layer.fan_out() < 2) {
     return fmt::format("the first layer has {} neuron(s); a spread needs at least 2", layer.fan_out());

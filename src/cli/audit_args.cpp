@@ -24,6 +24,10 @@ constexpr ThresholdFlag kThresholdFlags[] = {
     {"--min-removable", "residual-fit.min_removable_rel", "... and the removable loss >= this x L0 (1e-4)"},
     {"--plateau-rel", "loss-plateau.rel_threshold", "plateau when the tail drop / current loss < this (1e-2)"},
     {"--plateau-abs", "loss-plateau.abs_threshold", "... or when the tail drop / L0 < this (1e-4)"},
+    {"--curvature-threshold", "curvature.threshold", "curvature fails when lambda_min < -this x lambda_max (1e-3) ..."},
+    {"--curvature-decrease", "curvature.min_decrease_rel", "... and a step along it lowers the loss by >= this x L0 (1e-4)"},
+    {"--degeneracy-threshold", "layer-degeneracy.threshold", "layer-degeneracy fails when a deep layer's mean |corr| >= this (0.95)"},
+    {"--two-way-threshold", "two-way-diversity.threshold", "two-way-diversity fails when a middle layer's empty cap / random median > this (2)"},
     {"--global-ratio", "verdict.global_loss_ratio", "global outright when loss <= this x L0 (1e-6)"},
 };
 
@@ -51,6 +55,13 @@ void AddAuditArgs(CLI::App& app, AuditArgs& args) {
   app.add_option("--features", o.residual_fit.features, "residual-fit: fresh random units")->check(CLI::PositiveNumber)->capture_default_str();
   app.add_option("--permutations", o.residual_fit.permutations, "residual-fit: permutations of the null")->check(CLI::PositiveNumber)->capture_default_str();
   app.add_option("--probes", o.support_spread.probes, "support-spread: random probes of the sphere")->check(CLI::PositiveNumber)->capture_default_str();
+  app.add_option("--curvature-iterations", o.curvature.max_iterations, "curvature: Lanczos steps (Hessian-vector products)")
+      ->check(CLI::Range(2, 100000))->capture_default_str();
+  app.add_option("--curvature-method", args.curvature_method, "curvature: Hessian-vector products exact (R-operator) or by central differences")
+      ->check(CLI::IsMember({"exact", "central-difference"}))->capture_default_str();
+  app.add_option("--curvature", args.curvature_when, "When to run the curvature check: at a plateau with a decayed gradient, always, or never")
+      ->check(CLI::IsMember({"plateau", "always", "never"}))->capture_default_str();
+  app.add_flag("--judged-layer-only", args.judged_layer_only, "Stop the backward pass at the judged layer (no per-layer gradient table)");
   AddAuditThresholdArgs(app, args);
 }
 
@@ -63,6 +74,10 @@ void AddAuditThresholdArgs(CLI::App& app, AuditArgs& args) {
 
 audit::AuditOptions AuditArgs::Resolve() const {
   audit::AuditOptions resolved = options;
+  resolved.curvature_when = *audit::CurvatureWhenFromString(curvature_when);
+  resolved.curvature.method = curvature_method == "exact" ? model::HessianMethod::kExact
+                                                          : model::HessianMethod::kCentralDifference;
+  if (judged_layer_only) resolved.all_layer_gradients = false;
   if (!thresholds_file.empty()) audit::ApplyThresholds(ReadJsonFile(thresholds_file), thresholds_file, resolved);
   nlohmann::json flags = nlohmann::json::object();
   for (const auto& [key, value] : threshold_flags) {

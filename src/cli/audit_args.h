@@ -17,6 +17,9 @@ struct AuditArgs {
   std::string thresholds_file;
   audit::AuditOptions options;
   std::map<std::string, double> threshold_flags;  // "check.field" -> value, only flags given
+  std::string curvature_when = "plateau";  // audit::CurvatureWhenFromString
+  std::string curvature_method = "exact";  // exact | central-difference
+  bool judged_layer_only = false;
 
   // The options to run with: defaults, then the file, then the flags.
   audit::AuditOptions Resolve() const;

@@ -101,6 +101,19 @@ std::string CheckQuestion(const std::string& name) {
     return "Can fresh features explain what the network leaves? Statistic: share of the remaining loss they remove "
            "on held-out rows; fails when at least the threshold and significant.";
   }
+  if (name == checks::kCurvatureName) {
+    return "Is this a saddle training will leave? Statistic: smallest over largest Hessian eigenvalue; fails when "
+           "below minus the threshold and a step along that direction lowers the loss enough to matter.";
+  }
+  if (name == checks::kLayerDegeneracyName) {
+    return "Do a deep layer's neurons still compute different functions? Statistic: the worst layer's mean "
+           "absolute correlation between its neurons' activations; fails at or above the threshold.";
+  }
+  if (name == checks::kTwoWayDiversityName) {
+    return "Do a middle layer's neurons stay diverse in what they read and what they feed? Statistic: the worst "
+           "largest empty cap of incoming rows or outgoing columns over its random median; fails above the "
+           "threshold.";
+  }
   if (name == checks::kLossPlateauName) {
     return "Has the loss stopped falling? Statistic: relative drop across the tail window; a plateau (pass) below "
            "the threshold.";
@@ -511,6 +524,33 @@ std::string ResidualSection(const audit::AuditReport& r) {
   return out + "</section>\n";
 }
 
+// Deep networks: how alike each hidden layer's neurons are, as bars against the threshold.
+std::string DepthSection(const audit::AuditReport& r) {
+  const checks::CheckResult* deg = r.Find(checks::kLayerDegeneracyName);
+  if (deg == nullptr || !deg->ran() || !deg->detail.contains("layers")) return {};
+  svg::BarChart bars;
+  bars.title = "Mean absolute correlation between the neurons of each hidden layer after the first";
+  bars.x = {"layer", "", svg::Scale::kLinear, {}, {}};
+  bars.y = {"mean |corr| of neuron activations", "", svg::Scale::kLinear, 0.0, 1.0};  // a correlation's range
+  bars.series_name = "at the last snapshot";
+  bars.colour = svg::Colour::kBlue;
+  for (const json& layer : deg->detail["layers"]) {
+    bars.categories.push_back(std::to_string(layer.value("layer", 0)));
+    bars.values.push_back(JNum(layer, "mean_abs_corr"));
+  }
+  bars.levels.push_back({"degeneracy threshold", deg->threshold, svg::Colour::kBlack, svg::Dash::kDashed});
+  std::string caption =
+      "For each hidden layer after the first, the mean absolute correlation between the activations of its neurons "
+      "over the audit rows. Bars reaching the dashed line mean the layer's neurons compute nearly one function: in "
+      "networks of depth four or more started from independent random weights, the middle layers do this in the "
+      "mean-field limit, and no amount of width or training undoes it.";
+  if (!deg->message.empty()) caption += " " + Sentence(deg->message);
+  std::string out = "<section id=\"depth\"><h2>Deep layers</h2>\n";
+  out += Figure("layer-degeneracy", "Neuron correlation per layer", caption,
+                svg::RenderBarChart(bars, "layer-degeneracy", svg::Size{760, 280}));
+  return out + "</section>\n";
+}
+
 std::string ThresholdsSection(const json& thresholds) {
   if (!thresholds.is_object() || thresholds.empty()) return {};
   std::string out = "<section id=\"thresholds\"><h2>Thresholds used</h2>\n<table class=\"thresholds\"><thead><tr><th>check</th>"
@@ -546,6 +586,7 @@ std::string AuditReportToHtml(const audit::AuditReport& r, const HtmlOptions& op
   out += GradientSection(r);
   out += DirectionSection(r, options);
   out += ResidualSection(r);
+  out += DepthSection(r);
   out += ThresholdsSection(r.thresholds);
   out += "</main>\n";
   out += fmt::format("<footer>Written by {} ({} report). The page is self-contained: every chart is drawn inline and "

@@ -64,6 +64,24 @@ std::string GradientTable(const audit::AuditReport& r) {
   return out;
 }
 
+// Deep networks: one line per hidden layer after the first, from the layer-degeneracy detail.
+std::string DepthTable(const audit::AuditReport& r) {
+  const checks::CheckResult* deg = r.Find(checks::kLayerDegeneracyName);
+  if (deg == nullptr || !deg->ran() || !deg->detail.contains("layers")) return {};
+  std::string out = fmt::format("\n  {:<6} {:>6} {:>11} {:>15} {:>12}   {}\n", "layer", "width", "mean |corr|", "effective rank",
+                                "translation", "");
+  for (const auto& layer : deg->detail["layers"]) {
+    auto num = [&](const char* key) {
+      return layer.contains(key) && layer[key].is_number() ? layer[key].get<double>() : std::nan("");
+    };
+    const bool degenerate = num("mean_abs_corr") >= deg->threshold;
+    out += fmt::format("  {:<6} {:>6} {:>11} {:>15} {:>12}   {}\n", layer.value("layer", 0), layer.value("width", 0),
+                       Num(num("mean_abs_corr")), Num(num("effective_rank")), Num(num("translation_share")),
+                       degenerate ? "degenerate" : "");
+  }
+  return out;
+}
+
 }  // namespace
 
 std::string Sparkline(const std::vector<double>& values, int width) {
@@ -93,14 +111,15 @@ std::string AuditReportToText(const audit::AuditReport& r, const TextOptions& op
   std::transform(verdict.begin(), verdict.end(), verdict.begin(), [](unsigned char ch) { return std::toupper(ch); });
   out += fmt::format("  verdict  {}\n", Styled(c, VerdictStyle(r.verdict), verdict));
   out += Wrap(r.summary, 88, "  ");
-  out += fmt::format("\n  {:<16} {:<6} {:>11} {:>11} {:>9}  {}\n", "check", "status", "statistic", "threshold", "p-value", "");
+  out += fmt::format("\n  {:<18} {:<6} {:>11} {:>11} {:>9}  {}\n", "check", "status", "statistic", "threshold", "p-value", "");
   for (const auto& chk : r.checks) {
     const std::string status = checks::StatusToString(chk.status);
     const auto style = chk.status == checks::Status::kFail ? fmt::emphasis::bold : fmt::text_style{};
-    out += fmt::format("  {:<16} {:<6} {:>11} {:>11} {:>9}  {}\n", chk.name, Styled(c, style, status), Num(chk.statistic),
+    out += fmt::format("  {:<18} {:<6} {:>11} {:>11} {:>9}  {}\n", chk.name, Styled(c, style, status), Num(chk.statistic),
                        Num(chk.threshold), chk.p_value ? Num(*chk.p_value) : std::string("-"), chk.message);
   }
   out += GradientTable(r);
+  out += DepthTable(r);
   if (!r.loss_series.loss.empty()) {
     const double first = r.loss_series.loss.front();
     const double last = r.loss_series.loss.back();

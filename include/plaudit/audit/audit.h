@@ -13,15 +13,28 @@
 #include "plaudit/audit/trajectory.h"
 #include "plaudit/audit/verdict.h"
 #include "plaudit/checks/check_result.h"
+#include "plaudit/checks/curvature.h"
 #include "plaudit/checks/gradient_decay.h"
+#include "plaudit/checks/layer_degeneracy.h"
 #include "plaudit/checks/loss_plateau.h"
 #include "plaudit/checks/residual_fit.h"
 #include "plaudit/checks/support_spread.h"
+#include "plaudit/checks/two_way_diversity.h"
 #include "plaudit/io/run_dir.h"
 #include "plaudit/model/dataset.h"
 #include "plaudit/model/network.h"
 
 namespace plaudit::audit {
+
+// When the curvature check runs. Its cost (a few dozen Hessian-vector products on every audit
+// row) buys a decision only where the verdict would otherwise be spurious or global.
+enum class CurvatureWhen {
+  kAtPlateau,  // the loss is flat and the judged gradient has decayed (or settled at its floor)
+  kAlways,
+  kNever,
+};
+const char* CurvatureWhenToString(CurvatureWhen w);
+std::optional<CurvatureWhen> CurvatureWhenFromString(const std::string& name);  // plateau, always, never
 
 struct AuditOptions {
   // Audit rows: data.npz subsampled to at most this many rows (seeded); 0 = all rows.
@@ -36,6 +49,13 @@ struct AuditOptions {
   checks::SupportSpreadOptions support_spread;
   checks::ResidualFitOptions residual_fit;
   checks::LossPlateauOptions loss_plateau;
+  checks::CurvatureOptions curvature;          // its block_rows and seed follow the audit's
+  CurvatureWhen curvature_when = CurvatureWhen::kAtPlateau;
+  checks::LayerDegeneracyOptions layer_degeneracy;   // its block_rows and seed follow the audit's
+  checks::TwoWayDiversityOptions two_way_diversity;  // its seed follows the audit's
+  // Gradient statistics of every layer in the report (one backward pass to the input); false
+  // stops the backward pass at the judged layer, which is all the verdict needs.
+  bool all_layer_gradients = true;
 
   bool IsValid(std::string* why) const;
 };

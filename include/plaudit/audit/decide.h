@@ -3,8 +3,14 @@
 //   diverged      any loss or parameter non-finite
 //   global        last loss <= global_loss_ratio * L0, or plateau + gradient decayed + residual
 //                 not explained by fresh features
-//   spurious      plateau + gradient decayed + residual explained
-//   moving        loss still falling, or the chosen layer's gradient has not decayed
+//   spurious      plateau + gradient decayed + residual explained, and no saddle found
+//   moving        loss still falling, or the chosen layer's gradient has not decayed, or
+//                 plateau + gradient decayed + residual explained at a saddle (curvature fails)
+// A network without a hidden layer (depth 1) has a convex loss: a plateau with a decayed gradient
+// is global for it even when fresh features explain the residual (the summary says so).
+// A failed layer-degeneracy check of a network of depth >= 4 names the degenerate layer in the
+// spurious advice and adds a warning to a global summary; curvature and the deep checks are
+// never required (their skips do not make the verdict inconclusive).
 //   inconclusive  a check needed for the decision was skipped
 #include <string>
 #include <vector>
@@ -25,6 +31,10 @@ struct DecisionInputs {
   const checks::CheckResult* loss_plateau = nullptr;
   const checks::CheckResult* residual_fit = nullptr;
   const checks::CheckResult* support_spread = nullptr;
+  const checks::CheckResult* curvature = nullptr;          // optional
+  const checks::CheckResult* layer_degeneracy = nullptr;   // optional
+  const checks::CheckResult* two_way_diversity = nullptr;  // optional
+  int depth = 2;                      // number of weight layers
 };
 
 struct Decision {
