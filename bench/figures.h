@@ -5,6 +5,7 @@
 #include <filesystem>
 #include <optional>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include <nlohmann/json.hpp>
@@ -15,6 +16,8 @@
 namespace plaudit::bench {
 
 struct Figure {
+  Figure() = default;
+  Figure(std::string key_, std::string label_) : key(std::move(key_)), label(std::move(label_)) {}
   std::string key;    // stable name, used to match rows between workloads
   std::string label;  // what was timed, for people
   int threads = 1;

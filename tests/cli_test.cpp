@@ -414,3 +414,29 @@ TEST_CASE("train --watch --stop-on verdict stops at the first verdict and exits 
   CHECK(ParseJson(audit).at("verdict") == v);
   CHECK(audit.exit_code == r.exit_code);
 }
+
+TEST_CASE("a memory cap (--max-memory) too small for the job is a one-line error with exit 65", "[cli][limits]") {
+#if defined(__SANITIZE_ADDRESS__)
+  // AddressSanitizer reserves terabytes of address space up front, so an address-space cap
+  // cannot be tested under it.
+  WARN("skipped: address-space limits are meaningless under AddressSanitizer");
+#else
+  TempDir dir("cli-max-memory");
+  const fs::path out = dir / "big.npz";
+  // 4 million rows x 16 columns of float64 is 512 MiB for x alone: beyond a 256 MiB cap.
+  const ProcessResult capped =
+      RunPlaudit({"--max-memory", "256M", "synth", "-o", out.string(), "--rows", "4000000", "--dim", "16"});
+  INFO(Describe(capped));
+  CHECK(capped.exit_code == 65);
+  CheckOneLineError(capped, {"--max-memory 256M"});
+  CHECK_FALSE(fs::exists(out));  // nothing half-written
+
+  const ProcessResult roomy = RunPlaudit({"--max-memory", "4G", "synth", "-o", out.string(), "--rows", "2000"});
+  INFO(Describe(roomy));
+  CHECK(roomy.exit_code == 0);
+
+  const ProcessResult bad = RunPlaudit({"--max-memory", "12Q", "synth", "-o", out.string()});
+  CHECK(bad.exit_code == 64);
+  CheckOneLineError(bad, {"--max-memory"});
+#endif
+}

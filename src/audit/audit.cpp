@@ -146,7 +146,9 @@ std::optional<std::string> CurvatureNotNeeded(const AuditOptions& options, const
 
 checks::CheckResult CurvatureOf(const Inputs& in, const AuditOptions& options) {
   if (!in.data) return NeedsData(checks::kCurvatureName, options.curvature.threshold);
-  return checks::RunCurvature(in.last, *in.data, in.baseline_loss, Seeded(options.curvature, options));
+  const model::Dataset rows = model::Subsample(*in.data, options.curvature_rows, options.seed ^ 0x94d049bb133111ebULL);
+  // L0 stays that of the audit rows, so the decrease is read on the same scale as every other check.
+  return checks::RunCurvature(in.last, rows, in.baseline_loss, Seeded(options.curvature, options));
 }
 checks::CheckResult LayerDegeneracyOf(const Inputs& in, const AuditOptions& options) {
   if (!in.data) return NeedsData(checks::kLayerDegeneracyName, options.layer_degeneracy.threshold);
@@ -164,6 +166,7 @@ bool AuditOptions::IsValid(std::string* why) const {
     return false;
   };
   if (max_rows < 0) return bad(fmt::format("max-rows is {}, must be >= 0", max_rows));
+  if (curvature_rows < 0) return bad(fmt::format("curvature-rows is {}, must be >= 0", curvature_rows));
   if (threads < 1) return bad(fmt::format("threads is {}, must be >= 1", threads));
   if (block_rows < 1) return bad(fmt::format("block-rows is {}, must be >= 1", block_rows));
   if (!(global_loss_ratio >= 0.0)) return bad(fmt::format("global-loss-ratio is {}, must be >= 0", global_loss_ratio));

@@ -57,6 +57,8 @@ void AddAuditArgs(CLI::App& app, AuditArgs& args) {
   app.add_option("--probes", o.support_spread.probes, "support-spread: random probes of the sphere")->check(CLI::PositiveNumber)->capture_default_str();
   app.add_option("--curvature-iterations", o.curvature.max_iterations, "curvature: Lanczos steps (Hessian-vector products)")
       ->check(CLI::Range(2, 100000))->capture_default_str();
+  app.add_option("--curvature-rows", o.curvature_rows, "curvature: audit rows it uses (seeded subsample; 0 = all)")
+      ->check(CLI::NonNegativeNumber)->capture_default_str();
   app.add_option("--curvature-method", args.curvature_method, "curvature: Hessian-vector products exact (R-operator) or by central differences")
       ->check(CLI::IsMember({"exact", "central-difference"}))->capture_default_str();
   app.add_option("--curvature", args.curvature_when, "When to run the curvature check: at a plateau with a decayed gradient, always, or never")

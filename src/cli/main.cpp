@@ -5,6 +5,7 @@
 #include <fmt/core.h>
 
 #include "cli/commands.h"
+#include "cli/memory_limit.h"
 #include "plaudit/core/error.h"
 
 int main(int argc, char** argv) {
@@ -16,6 +17,12 @@ int main(int argc, char** argv) {
   });
   app.require_subcommand(0, 1);
   app.set_version_flag("--version", "plaudit 0.1.0");
+  std::string max_memory;
+  app.add_option("--max-memory", max_memory,
+                 "Cap the process's memory (address space), e.g. 512M or 4G; exceeding it is a one-line error (exit 65)")
+      ->check([](const std::string& v) {
+        return plaudit::cli::ParseMemorySize(v) ? std::string() : "not a size such as 512M or 4G: " + v;
+      });
   std::vector<plaudit::cli::Command> commands = {
       plaudit::cli::AddInspectCommand(app),
       plaudit::cli::AddAuditCommand(app),
@@ -38,6 +45,7 @@ int main(int argc, char** argv) {
     return static_cast<int>(plaudit::ExitCode::kUsage);
   }
   try {
+    if (!max_memory.empty()) plaudit::cli::ApplyMemoryLimit(*plaudit::cli::ParseMemorySize(max_memory));
     for (auto& c : commands) {
       if (c.app != nullptr && c.app->parsed()) return c.run();
     }
@@ -49,7 +57,8 @@ int main(int argc, char** argv) {
     fmt::print(stderr, "plaudit: {}\n", e.what());
     return e.exit_status();
   } catch (const std::bad_alloc&) {
-    fmt::print(stderr, "plaudit: out of memory (try a smaller --max-rows)\n");
+    fmt::print(stderr, "plaudit: out of memory{} (try a smaller --max-rows or --block-rows)\n",
+               max_memory.empty() ? std::string() : " under --max-memory " + max_memory);
     return static_cast<int>(plaudit::ExitCode::kBadData);
   }
   return static_cast<int>(plaudit::ExitCode::kUsage);

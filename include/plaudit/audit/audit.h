@@ -51,6 +51,9 @@ struct AuditOptions {
   checks::LossPlateauOptions loss_plateau;
   checks::CurvatureOptions curvature;          // its block_rows and seed follow the audit's
   CurvatureWhen curvature_when = CurvatureWhen::kAtPlateau;
+  // Audit rows the curvature check uses (seeded subsample; 0 = all): its cost is ~2 x
+  // max_iterations gradient evaluations on these rows, so it is capped below max_rows.
+  Eigen::Index curvature_rows = 2048;
   checks::LayerDegeneracyOptions layer_degeneracy;   // its block_rows and seed follow the audit's
   checks::TwoWayDiversityOptions two_way_diversity;  // its seed follows the audit's
   // Gradient statistics of every layer in the report (one backward pass to the input); false
