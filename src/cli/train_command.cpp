@@ -143,7 +143,8 @@ int RunTrain(TrainArgs& a) {
     audit::WatchOptions wo;
     wo.audit = a.audit.Resolve();
     wo.idle_polls = 1 << 30;  // a run we write ourselves is never idle
-    hooks.on_snapshot = [&](std::int64_t, double) {
+    // wo by value: the hook outlives this block.
+    hooks.on_snapshot = [&, wo](std::int64_t, double) {
       if (!watcher) watcher.emplace(a.out, wo);
       for (const auto& e : watcher->Poll()) {
         printer.Print(e);
