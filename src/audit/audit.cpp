@@ -146,9 +146,10 @@ std::optional<std::string> CurvatureNotNeeded(const AuditOptions& options, const
 
 checks::CheckResult CurvatureOf(const Inputs& in, const AuditOptions& options) {
   if (!in.data) return NeedsData(checks::kCurvatureName, options.curvature.threshold);
-  const model::Dataset rows = model::Subsample(*in.data, options.curvature_rows, options.seed ^ 0x94d049bb133111ebULL);
+  const checks::CurvatureOptions curvature = Seeded(options.curvature, options);
+  const model::Dataset rows = model::Subsample(*in.data, options.curvature_rows, curvature.seed);
   // L0 stays that of the audit rows, so the decrease is read on the same scale as every other check.
-  return checks::RunCurvature(in.last, rows, in.baseline_loss, Seeded(options.curvature, options));
+  return checks::RunCurvature(in.last, rows, in.baseline_loss, curvature);
 }
 checks::CheckResult LayerDegeneracyOf(const Inputs& in, const AuditOptions& options) {
   if (!in.data) return NeedsData(checks::kLayerDegeneracyName, options.layer_degeneracy.threshold);
