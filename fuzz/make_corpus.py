@@ -89,6 +89,24 @@ def zip64_deflated_lying(name, data, comp_size, size):
     return body + central + eocd
 
 
+def deflate_claims_1000x():
+    """200 KiB of random float64 bytes, deflated honestly (random bytes do not compress, so the
+    stream is about 200 KiB), inside zip64 fields and an NPY header that both claim 1000 times
+    that. The claim sits inside the 1:1100 ratio the reader allows, so only reading the stream
+    can show the lie; a reader that sizes its buffer from the claim asks for about 200 MB."""
+    payload = np.random.default_rng(8).bytes(200 * 1024)
+    header_len = len(npy_raw("{'descr': '<f8', 'fortran_order': False, 'shape': (1,), }"))
+    co = zlib.compressobj(9, zlib.DEFLATED, -15)
+    comp = len(co.compress(npy_raw("{'descr': '<f8', 'fortran_order': False, 'shape': (1,), }") + payload) + co.flush())
+    claim = 1000 * comp
+    elements = (claim - header_len) // 8
+    data = npy_raw(f"{{'descr': '<f8', 'fortran_order': False, 'shape': ({elements},), }}") + payload
+    assert len(npy_raw(f"{{'descr': '<f8', 'fortran_order': False, 'shape': ({elements},), }}")) == header_len
+    co = zlib.compressobj(9, zlib.DEFLATED, -15)
+    real = len(co.compress(data) + co.flush())
+    return zip64_deflated_lying("x.npy", data, comp_size=real, size=header_len + 8 * elements)
+
+
 def write(target, name, data):
     path = OUT / target / name
     path.write_bytes(data if isinstance(data, bytes) else data.encode("utf-8"))
@@ -187,6 +205,9 @@ def main():
     npz_corpus()
     manifest_corpus()
     scalars_corpus()
+    # Too large for a seed (it would slow every fuzz run); a regression fixture only.
+    (FIXTURES / "fuzz" / "npz_deflate_claims_1000x.npz").write_bytes(deflate_claims_1000x())
+    shutil.copy(OUT / "fuzz_npz" / "duplicate_stems.npz", FIXTURES / "fuzz" / "npz_duplicate_stems.npz")
     for target in sorted(p.name for p in OUT.iterdir()):
         files = list((OUT / target).iterdir())
         print(f"{target}: {len(files)} files, {sum(f.stat().st_size for f in files)} bytes")

@@ -415,6 +415,26 @@ TEST_CASE("train --watch --stop-on verdict stops at the first verdict and exits 
   CHECK(audit.exit_code == r.exit_code);
 }
 
+TEST_CASE("an archive's size claim does not decide the allocation: a lying data.npz fails under a memory cap it fits", "[cli][limits]") {
+#if defined(__SANITIZE_ADDRESS__)
+  WARN("skipped: address-space limits are meaningless under AddressSanitizer");
+#else
+  // tests/fixtures/fuzz/npz_deflate_claims_1000x.npz (fuzz/make_corpus.py): 205 kB of deflate
+  // claiming about 205 MB. Under a 160 MiB cap a reader that trusts the claim runs out of memory
+  // (the cap's error); one that grows its buffer with the stream reports the truncation.
+  TempDir dir("cli-npz-claim");
+  const fs::path run = dir / "run";
+  fs::copy(fs::path(PLAUDIT_FIXTURES) / "inspect-run", run, fs::copy_options::recursive);
+  fs::copy_file(fs::path(PLAUDIT_FIXTURES) / "fuzz" / "npz_deflate_claims_1000x.npz", run / "data.npz",
+                fs::copy_options::overwrite_existing);
+  const ProcessResult r = RunPlaudit({"--max-memory", "160M", "inspect", run.string()});
+  INFO(Describe(r));
+  CHECK(r.exit_code == 65);
+  CheckOneLineError(r, {"data.npz", "truncated or corrupt"});
+  CHECK(r.err.find("--max-memory") == std::string::npos);
+#endif
+}
+
 TEST_CASE("a memory cap (--max-memory) too small for the job is a one-line error with exit 65", "[cli][limits]") {
 #if defined(__SANITIZE_ADDRESS__)
   // AddressSanitizer reserves terabytes of address space up front, so an address-space cap

@@ -46,6 +46,27 @@ TEST_CASE("a zip directory claiming 10 GiB in a 379-byte archive is rejected bef
                          IsError(ExitCode::kBadData, {"claims.npz", "holds only 379"}));
 }
 
+// fuzz/make_corpus.py, duplicate_stems.npz: members 'x.npy' and 'x' both name array 'x' (numpy.load
+// strips '.npy', so it too sees one name twice). The reader kept whichever came last, silently.
+TEST_CASE("an archive holding one array name twice is rejected, naming the array", "[io][npz][fuzz]") {
+  const std::string path = kFuzzDir + "npz_duplicate_stems.npz";
+  REQUIRE_THROWS_MATCHES(plaudit::io::ReadNpz(path), plaudit::Error,
+                         IsError(ExitCode::kBadData, {path, "array 'x'", "stored twice"}));
+}
+
+// fuzz/make_corpus.py, deflate_claims_1000x: 205 123 bytes of honest deflate (random bytes do not
+// compress) inside zip64 fields and an NPY header claiming 1000 times that, within the 1:1100
+// ratio deflate allows (zlib's technical notes give about 1032:1 as deflate's limit; from memory).
+// The reader used to size its buffer to the claim (about 200 MB) before reading; it now grows the
+// buffer as bytes inflate and fails at the real end of the stream. The CLI test "an archive's
+// size claim ..." checks the allocation under a memory cap.
+TEST_CASE("a deflated member claiming 1000x its stream fails at the real end of the stream", "[io][npz][fuzz]") {
+  const std::string path = kFuzzDir + "npz_deflate_claims_1000x.npz";
+  REQUIRE(ReadBytes(path).size() == 205123);
+  REQUIRE_THROWS_MATCHES(plaudit::io::ReadNpz(path), plaudit::Error,
+                         IsError(ExitCode::kBadData, {path, "member 'x'", "truncated or corrupt", "inflated"}));
+}
+
 // Not a finding: fuzz_npz reads through ParseNpz, so it must read what ReadNpz reads.
 TEST_CASE("ParseNpz on an archive's bytes reads what ReadNpz reads from its file", "[io][npz][fuzz]") {
   // numpy.savez_compressed output (tests/reference/make_npy_fixtures.py).

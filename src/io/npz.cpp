@@ -2,6 +2,7 @@
 
 #include <zip.h>
 
+#include <algorithm>
 #include <memory>
 #include <system_error>
 
@@ -60,6 +61,9 @@ NdArray ReadMember(zip_t* z, zip_uint64_t index, const std::string& where, std::
   if (size > comp * kMaxDeflateRatio + 4096) {
     raise(ExitCode::kBadData, "{}: archive claims {} bytes from {} compressed bytes (corrupt archive)", where, size, comp);
   }
+  if ((st.valid & ZIP_STAT_COMP_METHOD) && st.comp_method == ZIP_CM_STORE && (st.valid & ZIP_STAT_COMP_SIZE) && size != comp) {
+    raise(ExitCode::kBadData, "{}: stored member claims {} bytes but occupies {} (corrupt archive)", where, size, comp);
+  }
   std::unique_ptr<zip_file_t, ZipFileCloser> f(zip_fopen_index(z, index, 0));
   if (!f) raise(ExitCode::kBadData, "{}: cannot open member ({})", where, zip_strerror(z));
   // Read the fixed prefix first so the header's declared size is checked before the payload
@@ -72,12 +76,18 @@ NdArray ReadMember(zip_t* z, zip_uint64_t index, const std::string& where, std::
   }
   const NpyHeader header = ParseNpyHeader(bytes, size, where);
   const std::uint64_t need = header.header_bytes + header.payload_bytes;
-  if (need > bytes.size()) {
+  // Grow the buffer as inflated bytes actually arrive rather than to the claimed size at once:
+  // a member whose directory and header both lie then costs only what it really inflates to.
+  constexpr std::uint64_t kFirstChunk = std::uint64_t{1} << 20;
+  while (bytes.size() < need) {
     const std::size_t have = bytes.size();
-    bytes.resize(static_cast<std::size_t>(need));
-    got = zip_fread(f.get(), bytes.data() + have, need - have);
-    if (got < 0 || static_cast<std::uint64_t>(got) != need - have) {
-      raise(ExitCode::kBadData, "{}: member is truncated or corrupt ({})", where, zip_file_strerror(f.get()));
+    const std::uint64_t grow = std::max<std::uint64_t>(kFirstChunk, have);
+    const std::size_t next = static_cast<std::size_t>(std::min<std::uint64_t>(need, have + grow));
+    bytes.resize(next);
+    got = zip_fread(f.get(), bytes.data() + have, next - have);
+    if (got < 0 || static_cast<std::uint64_t>(got) != next - have) {
+      raise(ExitCode::kBadData, "{}: member is truncated or corrupt ({} of {} bytes inflated; {})", where,
+            have + static_cast<std::size_t>(std::max<zip_int64_t>(got, 0)), need, zip_file_strerror(f.get()));
     }
   }
   return ParseNpy(std::string_view(bytes.data(), static_cast<std::size_t>(need)), where);
@@ -91,6 +101,8 @@ ArrayMap ReadMembers(zip_t* z, const std::string& file, std::uint64_t archive_by
     if (raw == nullptr) continue;
     const std::string name = MemberName(raw);
     const std::string where = fmt::format("{} (member '{}')", file, name);
+    // 'x' and 'x.npy' name the same array; keeping either silently would hide the other.
+    if (arrays.count(name) != 0) raise(ExitCode::kBadData, "{}: array '{}' is stored twice in the archive", file, name);
     arrays[name] = ReadMember(z, static_cast<zip_uint64_t>(i), where, archive_bytes);
   }
   return arrays;
