@@ -60,6 +60,8 @@ Trajectory TrajectoryForLayer(const io::RunDir& run, const Inputs& in, const Aud
   t.block_rows = options.block_rows;
   t.threads = options.threads;
   t.lowest_grad_layer = options.all_layer_gradients ? 0 : layer;
+  t.precision = options.precision;
+  t.refine_below = options.float32_refine_below;
   Trajectory traj = ComputeTrajectory(run, in.snaps, in.data ? &*in.data : nullptr, t);
   const int resolved = checks::ResolveGradientLayer(options.gradient_decay, depth, traj.frozen);
   if (resolved < t.lowest_grad_layer) {
@@ -170,6 +172,9 @@ bool AuditOptions::IsValid(std::string* why) const {
   if (curvature_rows < 0) return bad(fmt::format("curvature-rows is {}, must be >= 0", curvature_rows));
   if (threads < 1) return bad(fmt::format("threads is {}, must be >= 1", threads));
   if (block_rows < 1) return bad(fmt::format("block-rows is {}, must be >= 1", block_rows));
+  if (!(float32_refine_below > 0.0 && float32_refine_below <= 1.0)) {
+    return bad(fmt::format("float32-refine-below is {}, must be in (0, 1]", float32_refine_below));
+  }
   if (!(global_loss_ratio >= 0.0)) return bad(fmt::format("global-loss-ratio is {}, must be >= 0", global_loss_ratio));
   return gradient_decay.IsValid(why) && support_spread.IsValid(why) && residual_fit.IsValid(why) &&
          loss_plateau.IsValid(why) && Seeded(curvature, *this).IsValid(why) &&

@@ -37,6 +37,8 @@ SnapshotWork Work(const io::RunDir& run, const io::SnapshotRef& ref, const model
     model::EvalOptions eval;
     eval.block_rows = options.block_rows;
     eval.lowest_grad_layer = work.point.finite ? lowest : -1;
+    eval.precision = options.precision;
+    work.point.float32 = options.precision == model::Precision::kFloat32;
     const model::Evaluation ev = model::Evaluate(net, *data, eval);
     work.point.loss = ev.loss;
     if (!work.point.finite) return work;
@@ -65,6 +67,65 @@ SnapshotWork Work(const io::RunDir& run, const io::SnapshotRef& ref, const model
     work.point.grad[static_cast<std::size_t>(l)] = ComputeGradientStats(g);
   }
   return work;
+}
+
+std::vector<std::size_t> IndexRange(std::size_t from, std::size_t to) {
+  std::vector<std::size_t> out;
+  for (std::size_t i = from; i < to; ++i) out.push_back(i);
+  return out;
+}
+
+// Evaluate snaps[i] for every i in `which` on options.threads threads, comparing each with the
+// first network; the first failure is rethrown once every thread has stopped.
+void EvaluateInParallel(const io::RunDir& run, const std::vector<io::SnapshotRef>& snaps, const model::Dataset* data,
+                        const TrajectoryOptions& options, const std::vector<std::size_t>& which,
+                        const SnapshotWork& first, std::vector<SnapshotPoint>& points,
+                        std::vector<std::vector<bool>>& same) {
+  const io::Manifest& manifest = run.manifest();
+  std::atomic<std::size_t> next{0};
+  std::exception_ptr failure;
+  std::atomic<bool> failed{false};
+  auto worker = [&] {
+    for (std::size_t k = next++; k < which.size() && !failed; k = next++) {
+      const std::size_t i = which[k];
+      try {
+        SnapshotWork w = Work(run, snaps[i], data, options);
+        RequireSameArchitecture(manifest, first.net, snaps.front().path.string(), w.net, snaps[i].path.string());
+        same[i] = FrozenLayers(manifest, first.net, w.net);
+        points[i] = std::move(w.point);
+      } catch (...) {
+        if (!failed.exchange(true)) failure = std::current_exception();
+      }
+    }
+  };
+  const int threads = std::max(1, std::min<int>(options.threads, static_cast<int>(which.size())));
+  std::vector<std::thread> pool;
+  for (int t = 1; t < threads; ++t) pool.emplace_back(worker);
+  worker();
+  for (auto& t : pool) t.join();
+  if (failure) std::rethrow_exception(failure);
+}
+
+// The float32 points to evaluate again in double: the last finite one, and those whose gradient
+// sup in any computed layer is at most refine_below x that layer's largest sup over the run.
+std::vector<std::size_t> PointsToRefine(const std::vector<SnapshotPoint>& points, double refine_below) {
+  std::vector<double> peak;
+  for (const auto& p : points) {
+    if (!p.finite) continue;
+    peak.resize(std::max(peak.size(), p.grad.size()), 0.0);
+    for (std::size_t l = 0; l < p.grad.size(); ++l) peak[l] = std::max(peak[l], p.grad[l].sup);
+  }
+  std::vector<std::size_t> redo;
+  for (std::size_t i = 0; i < points.size(); ++i) {
+    const auto& p = points[i];
+    if (!p.finite) continue;
+    bool low = i + 1 == points.size();
+    for (std::size_t l = 0; l < p.grad.size() && !low; ++l) {
+      low = peak[l] > 0.0 && p.grad[l].sup <= refine_below * peak[l];
+    }
+    if (low) redo.push_back(i);
+  }
+  return redo;
 }
 
 }  // namespace
@@ -139,27 +200,15 @@ Trajectory ComputeTrajectory(const io::RunDir& run, const std::vector<io::Snapsh
   std::vector<SnapshotPoint> points(snaps.size());
   std::vector<std::vector<bool>> same(snaps.size());
   points[0] = first.point;
-  std::atomic<std::size_t> next{1};
-  std::exception_ptr failure;
-  std::atomic<bool> failed{false};
-  auto worker = [&] {
-    for (std::size_t i = next++; i < snaps.size() && !failed; i = next++) {
-      try {
-        SnapshotWork w = Work(run, snaps[i], data, options);
-        RequireSameArchitecture(manifest, first.net, snaps.front().path.string(), w.net, snaps[i].path.string());
-        same[i] = FrozenLayers(manifest, first.net, w.net);
-        points[i] = std::move(w.point);
-      } catch (...) {
-        if (!failed.exchange(true)) failure = std::current_exception();
-      }
-    }
-  };
-  const int threads = std::max(1, std::min<int>(options.threads, static_cast<int>(snaps.size())));
-  std::vector<std::thread> pool;
-  for (int t = 1; t < threads; ++t) pool.emplace_back(worker);
-  worker();
-  for (auto& t : pool) t.join();
-  if (failure) std::rethrow_exception(failure);
+  EvaluateInParallel(run, snaps, data, options, IndexRange(1, snaps.size()), first, points, same);
+  if (options.precision == model::Precision::kFloat32 && data != nullptr) {
+    TrajectoryOptions exact = options;
+    exact.precision = model::Precision::kDouble;
+    const std::vector<std::size_t> redo = PointsToRefine(points, options.refine_below);
+    EvaluateInParallel(run, snaps, data, exact, redo, first, points, same);
+    traj.precision = model::Precision::kFloat32;
+    traj.recomputed_in_double = static_cast<int>(redo.size());
+  }
 
   if (snaps.size() >= 2) {
     for (std::size_t l = 0; l < traj.frozen.size(); ++l) {

@@ -63,6 +63,10 @@ void AddAuditArgs(CLI::App& app, AuditArgs& args) {
       ->check(CLI::IsMember({"exact", "central-difference"}))->capture_default_str();
   app.add_option("--curvature", args.curvature_when, "When to run the curvature check: at a plateau with a decayed gradient, always, or never")
       ->check(CLI::IsMember({"plateau", "always", "never"}))->capture_default_str();
+  app.add_option("--precision", args.precision,
+                 "Arithmetic of the gradient pass over the snapshots: double, or float32 with the last snapshot and "
+                 "any whose gradient fell below 1e-3 of its peak recomputed in double")
+      ->check(CLI::IsMember({"double", "float32"}))->capture_default_str();
   app.add_flag("--judged-layer-only", args.judged_layer_only, "Stop the backward pass at the judged layer (no per-layer gradient table)");
   AddAuditThresholdArgs(app, args);
 }
@@ -80,6 +84,7 @@ audit::AuditOptions AuditArgs::Resolve() const {
   resolved.curvature.method = curvature_method == "exact" ? model::HessianMethod::kExact
                                                           : model::HessianMethod::kCentralDifference;
   if (judged_layer_only) resolved.all_layer_gradients = false;
+  resolved.precision = *model::PrecisionFromString(precision);
   if (!thresholds_file.empty()) audit::ApplyThresholds(ReadJsonFile(thresholds_file), thresholds_file, resolved);
   nlohmann::json flags = nlohmann::json::object();
   for (const auto& [key, value] : threshold_flags) {

@@ -20,6 +20,7 @@ struct AuditArgs {
   std::string curvature_when = "plateau";  // audit::CurvatureWhenFromString
   std::string curvature_method = "exact";  // exact | central-difference
   bool judged_layer_only = false;
+  std::string precision = "double";        // double | float32
 
   // The options to run with: defaults, then the file, then the flags.
   audit::AuditOptions Resolve() const;

@@ -18,9 +18,6 @@ constexpr NamedActivation kNames[] = {
     {Activation::kGelu, "gelu"},
 };
 
-// sigmoid through tanh: no overflow for large |z|.
-inline auto Sigmoid(const Eigen::ArrayXXd& z) { return 0.5 * ((0.5 * z).tanh() + 1.0); }
-
 }  // namespace
 
 const char* ActivationToString(Activation a) {
@@ -42,22 +39,41 @@ std::string ActivationNames() {
   return s;
 }
 
-void Apply(Activation a, const Eigen::MatrixXd& z, Eigen::MatrixXd& out) {
+namespace {
+
+// One body for both precisions; constants are converted once so float math stays float.
+template <typename Scalar>
+using Matrix = Eigen::Matrix<Scalar, Eigen::Dynamic, Eigen::Dynamic>;
+template <typename Scalar>
+using Array = Eigen::Array<Scalar, Eigen::Dynamic, Eigen::Dynamic>;
+
+// sigmoid through tanh: no overflow for large |z|.
+template <typename Derived>
+auto SigmoidOf(const Eigen::ArrayBase<Derived>& z) {
+  using S = typename Derived::Scalar;
+  return S(0.5) * ((S(0.5) * z).tanh() + S(1));
+}
+
+template <typename Scalar>
+void ApplyImpl(Activation a, const Matrix<Scalar>& z, Matrix<Scalar>& out) {
+  using S = Scalar;
   const auto za = z.array();
   switch (a) {
     case Activation::kIdentity: out = z; break;
-    case Activation::kRelu: out = za.max(0.0).matrix(); break;
-    case Activation::kLeakyRelu: out = (za > 0.0).select(za, kLeakySlope * za).matrix(); break;
+    case Activation::kRelu: out = za.max(S(0)).matrix(); break;
+    case Activation::kLeakyRelu: out = (za > S(0)).select(za, S(kLeakySlope) * za).matrix(); break;
     case Activation::kTanh: out = za.tanh().matrix(); break;
-    case Activation::kSigmoid: out = Sigmoid(za).matrix(); break;
-    case Activation::kSoftplus: out = (za.max(0.0) + (-za.abs()).exp().log1p()).matrix(); break;
+    case Activation::kSigmoid: out = SigmoidOf(za).matrix(); break;
+    case Activation::kSoftplus: out = (za.max(S(0)) + (-za.abs()).exp().log1p()).matrix(); break;
     case Activation::kGelu:
-      out = (0.5 * za * (1.0 + za.unaryExpr([](double v) { return std::erf(v * kInvSqrt2); }))).matrix();
+      out = (S(0.5) * za * (S(1) + za.unaryExpr([](S v) { return std::erf(v * S(kInvSqrt2)); }))).matrix();
       break;
   }
 }
 
-void ApplyWithDerivative(Activation a, const Eigen::MatrixXd& z, Eigen::MatrixXd& out, Eigen::MatrixXd& deriv) {
+template <typename Scalar>
+void ApplyWithDerivativeImpl(Activation a, const Matrix<Scalar>& z, Matrix<Scalar>& out, Matrix<Scalar>& deriv) {
+  using S = Scalar;
   const auto za = z.array();
   switch (a) {
     case Activation::kIdentity:
@@ -65,32 +81,44 @@ void ApplyWithDerivative(Activation a, const Eigen::MatrixXd& z, Eigen::MatrixXd
       deriv.setOnes(z.rows(), z.cols());
       break;
     case Activation::kRelu:
-      out = za.max(0.0).matrix();
-      deriv = (za > 0.0).cast<double>().matrix();
+      out = za.max(S(0)).matrix();
+      deriv = (za > S(0)).template cast<S>().matrix();
       break;
     case Activation::kLeakyRelu:
-      out = (za > 0.0).select(za, kLeakySlope * za).matrix();
-      deriv = (za > 0.0).select(Eigen::ArrayXXd::Ones(z.rows(), z.cols()), kLeakySlope).matrix();
+      out = (za > S(0)).select(za, S(kLeakySlope) * za).matrix();
+      deriv = (za > S(0)).select(Array<S>::Ones(z.rows(), z.cols()), S(kLeakySlope)).matrix();
       break;
     case Activation::kTanh:
       out = za.tanh().matrix();
-      deriv = (1.0 - out.array().square()).matrix();
+      deriv = (S(1) - out.array().square()).matrix();
       break;
     case Activation::kSigmoid:
-      out = Sigmoid(za).matrix();
-      deriv = (out.array() * (1.0 - out.array())).matrix();
+      out = SigmoidOf(za).matrix();
+      deriv = (out.array() * (S(1) - out.array())).matrix();
       break;
     case Activation::kSoftplus:
-      out = (za.max(0.0) + (-za.abs()).exp().log1p()).matrix();
-      deriv = Sigmoid(za).matrix();
+      out = (za.max(S(0)) + (-za.abs()).exp().log1p()).matrix();
+      deriv = SigmoidOf(za).matrix();
       break;
     case Activation::kGelu: {
-      const Eigen::ArrayXXd cdf = 0.5 * (1.0 + za.unaryExpr([](double v) { return std::erf(v * kInvSqrt2); }));
+      const Array<S> cdf = S(0.5) * (S(1) + za.unaryExpr([](S v) { return std::erf(v * S(kInvSqrt2)); }));
       out = (za * cdf).matrix();
-      deriv = (cdf + za * kInvSqrt2Pi * (-0.5 * za.square()).exp()).matrix();
+      deriv = (cdf + za * S(kInvSqrt2Pi) * (S(-0.5) * za.square()).exp()).matrix();
       break;
     }
   }
+}
+
+}  // namespace
+
+void Apply(Activation a, const Eigen::MatrixXd& z, Eigen::MatrixXd& out) { ApplyImpl<double>(a, z, out); }
+void Apply(Activation a, const Eigen::MatrixXf& z, Eigen::MatrixXf& out) { ApplyImpl<float>(a, z, out); }
+
+void ApplyWithDerivative(Activation a, const Eigen::MatrixXd& z, Eigen::MatrixXd& out, Eigen::MatrixXd& deriv) {
+  ApplyWithDerivativeImpl<double>(a, z, out, deriv);
+}
+void ApplyWithDerivative(Activation a, const Eigen::MatrixXf& z, Eigen::MatrixXf& out, Eigen::MatrixXf& deriv) {
+  ApplyWithDerivativeImpl<float>(a, z, out, deriv);
 }
 
 }  // namespace plaudit::model

@@ -16,11 +16,19 @@ nlohmann::json TrajectoryToJson(const audit::Trajectory& traj) {
       layers.push_back({{"layer", l + 1}, {"sup", Number(g.sup)}, {"p99", Number(g.p99)}, {"mean", Number(g.mean)},
                         {"neuron_sup", Number(g.neuron_sup)}});
     }
-    points.push_back({{"step", p.step}, {"loss", Number(p.loss)}, {"gradient", layers}});
+    nlohmann::json point = {{"step", p.step}, {"loss", Number(p.loss)}, {"gradient", layers}};
+    // Marked only when the run asked for float32, so double reports keep their exact bytes.
+    if (traj.precision == model::Precision::kFloat32) point["precision"] = p.float32 ? "float32" : "double";
+    points.push_back(std::move(point));
   }
   nlohmann::json frozen = nlohmann::json::array();
   for (std::size_t l = 0; l < traj.frozen.size(); ++l) if (traj.frozen[l]) frozen.push_back(l + 1);
-  return {{"points", points}, {"frozen_layers", frozen}};
+  nlohmann::json j = {{"points", points}, {"frozen_layers", frozen}};
+  if (traj.precision == model::Precision::kFloat32) {
+    j["precision"] = "float32";
+    j["recomputed_in_double"] = traj.recomputed_in_double;
+  }
+  return j;
 }
 
 }  // namespace

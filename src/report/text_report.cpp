@@ -131,6 +131,11 @@ std::string AuditReportToText(const audit::AuditReport& r, const TextOptions& op
     out += fmt::format("  audit rows {} of {}; L0 (best constant predictor) = {}; seed {}\n", r.rows_used, r.rows_total,
                        Num(r.baseline_loss), r.seed);
   }
+  if (r.trajectory.precision == model::Precision::kFloat32) {
+    out += fmt::format("  gradient pass in float32; {} of {} snapshots recomputed in double (the last one and those "
+                       "whose gradient fell below the refine level)\n",
+                       r.trajectory.recomputed_in_double, r.trajectory.points.size());
+  }
   return out;
 }
 

@@ -59,6 +59,12 @@ struct AuditOptions {
   // Gradient statistics of every layer in the report (one backward pass to the input); false
   // stops the backward pass at the judged layer, which is all the verdict needs.
   bool all_layer_gradients = true;
+  // Arithmetic of the gradient pass over the snapshots (TrajectoryOptions::precision). float32
+  // recomputes in double the last snapshot and any whose gradient sup in a computed layer is
+  // below float32_refine_below x that layer's peak, so the decay verdict reads double figures;
+  // the other checks always run in double. Live runs (watch) always evaluate in double.
+  model::Precision precision = model::Precision::kDouble;
+  double float32_refine_below = 1e-3;  // in (0, 1]
 
   bool IsValid(std::string* why) const;
 };

@@ -7,6 +7,7 @@
 
 #include "plaudit/io/run_dir.h"
 #include "plaudit/model/dataset.h"
+#include "plaudit/model/evaluate.h"
 #include "plaudit/model/network.h"
 
 namespace plaudit::audit {
@@ -32,18 +33,27 @@ struct SnapshotPoint {
   // One entry per layer; layers below the lowest one asked for are left default.
   std::vector<GradientStats> grad;
   bool grad_from_file = false;  // taken from grad/<name> arrays (no data given)
+  bool float32 = false;         // loss and gradients from the float32 pass (not recomputed in double)
 };
 
 struct Trajectory {
   std::vector<SnapshotPoint> points;  // in step order
   std::vector<bool> frozen;           // per layer: marked trainable=false or unchanged throughout
   int lowest_grad_layer = 0;
+  model::Precision precision = model::Precision::kDouble;
+  int recomputed_in_double = 0;       // float32 only: points evaluated again in double
 };
 
 struct TrajectoryOptions {
   int lowest_grad_layer = 0;        // backward pass stops here (0-based)
   Eigen::Index block_rows = 1024;
   int threads = 1;                  // snapshots evaluated in parallel; results do not depend on it
+  // float32: every snapshot is first evaluated in single precision; the last one, and any whose
+  // gradient sup in some computed layer is below `refine_below` times that layer's largest sup
+  // over the run, are evaluated again in double. Those are the points whose gradients cancel
+  // far enough for float32 rounding to matter, and the ones the decay verdict reads.
+  model::Precision precision = model::Precision::kDouble;
+  double refine_below = 1e-3;
 };
 
 // Evaluate one snapshot (for live runs, which add one point at a time). `net_out`, when given,

@@ -23,5 +23,9 @@ void Apply(Activation a, const Eigen::MatrixXd& z, Eigen::MatrixXd& out);
 // out = s(z), deriv = s'(z); gelu is the exact erf form, softplus has beta = 1.
 void ApplyWithDerivative(Activation a, const Eigen::MatrixXd& z, Eigen::MatrixXd& out,
                          Eigen::MatrixXd& deriv);
+// Single-precision forms, for the float32 gradient pass (model::Precision::kFloat32).
+void Apply(Activation a, const Eigen::MatrixXf& z, Eigen::MatrixXf& out);
+void ApplyWithDerivative(Activation a, const Eigen::MatrixXf& z, Eigen::MatrixXf& out,
+                         Eigen::MatrixXf& deriv);
 
 }  // namespace plaudit::model
