@@ -208,6 +208,10 @@ def main():
     # Too large for a seed (it would slow every fuzz run); a regression fixture only.
     (FIXTURES / "fuzz" / "npz_deflate_claims_1000x.npz").write_bytes(deflate_claims_1000x())
     shutil.copy(OUT / "fuzz_npz" / "duplicate_stems.npz", FIXTURES / "fuzz" / "npz_duplicate_stems.npz")
+    # A stored (uncompressed) member whose directory claims 64 bytes more than it occupies.
+    member = npy_bytes(np.arange(4.0))
+    (FIXTURES / "fuzz" / "npz_stored_size_lies.npz").write_bytes(
+        lie_about_sizes(zip_of({"x.npy": member}), len(member), len(member) + 64))
     for target in sorted(p.name for p in OUT.iterdir()):
         files = list((OUT / target).iterdir())
         print(f"{target}: {len(files)} files, {sum(f.stat().st_size for f in files)} bytes")

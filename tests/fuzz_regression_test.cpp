@@ -67,6 +67,15 @@ TEST_CASE("a deflated member claiming 1000x its stream fails at the real end of 
                          IsError(ExitCode::kBadData, {path, "member 'x'", "truncated or corrupt", "inflated"}));
 }
 
+// fuzz/make_corpus.py: a stored member of 160 bytes whose local header and directory both
+// claim 224. An uncompressed member's size is its compressed size (APPNOTE.TXT 4.4.8, 4.4.9:
+// method 0 stores the data as is), so the claim is refused before the member is read.
+TEST_CASE("a stored member claiming more bytes than it occupies is refused", "[io][npz][fuzz]") {
+  const std::string path = kFuzzDir + "npz_stored_size_lies.npz";
+  REQUIRE_THROWS_MATCHES(plaudit::io::ReadNpz(path), plaudit::Error,
+                         IsError(ExitCode::kBadData, {path, "member 'x'", "stored member claims 224 bytes but occupies 160"}));
+}
+
 // Not a finding: fuzz_npz reads through ParseNpz, so it must read what ReadNpz reads.
 TEST_CASE("ParseNpz on an archive's bytes reads what ReadNpz reads from its file", "[io][npz][fuzz]") {
   // numpy.savez_compressed output (tests/reference/make_npy_fixtures.py).
