@@ -19,7 +19,10 @@
 #include "op_count.h"
 #include "plaudit/audit/audit.h"
 #include "plaudit/audit/trajectory.h"
+#include "plaudit/checks/curvature.h"
 #include "plaudit/checks/gradient_decay.h"
+#include "plaudit/checks/layer_degeneracy.h"
+#include "plaudit/checks/two_way_diversity.h"
 #include "plaudit/core/error.h"
 #include "plaudit/model/evaluate.h"
 #include "plaudit/train/trainer.h"
@@ -40,8 +43,8 @@ struct BenchArgs {
   std::string cli = PLAUDIT_CLI;
 };
 
-const std::vector<std::string> kGroups = {"gemm", "gradient", "snapshot", "spread", "residual",
-                                          "plateau", "audit", "process", "train"};
+const std::vector<std::string> kGroups = {"gemm", "gradient", "float32", "snapshot", "spread", "residual",
+                                          "plateau", "deep", "audit", "process", "train"};
 
 std::string SimdLevel() {
 #if defined(__AVX512F__)
@@ -190,6 +193,21 @@ int Run(const BenchArgs& args) {
       add(bounded(f));
     }
   }
+  if (want("float32")) {
+    // The same pass in single precision (audit --precision float32 before its double refinement).
+    std::vector<model::Network> nets;
+    for (const auto& ref : inputs.snaps) nets.push_back(model::NetworkFromArrays(run.manifest(), run.ReadSnapshot(ref), ref.path.string()));
+    model::EvalOptions eval;
+    eval.block_rows = defaults.block_rows;
+    eval.lowest_grad_layer = layer;
+    eval.precision = model::Precision::kFloat32;
+    Figure f{"gradient_memory_f32", fmt::format("gradient pass in float32, {} nets in memory", snapshots)};
+    f.time = TimeRuns(runs, [&] {
+      for (const auto& net : nets) Consume(model::Evaluate(net, data, eval).loss);
+    });
+    f.flops = FlopCount{0.0, pass_flops};
+    add(bounded(f));
+  }
   if (want("snapshot")) {
     audit::TrajectoryOptions t;
     t.block_rows = defaults.block_rows;
@@ -227,6 +245,29 @@ int Run(const BenchArgs& args) {
     });
     add(f);
   }
+  if (want("deep")) {
+    // The checks after the contract's four. Curvature runs only at a plateau in the audit, so
+    // it is timed here on its own, on the audit's default row cap.
+    checks::CurvatureOptions c = defaults.curvature;
+    c.block_rows = defaults.block_rows;
+    c.seed = 0x94d049bb133111ebULL;
+    const model::Dataset sample = model::Subsample(data, defaults.curvature_rows, c.seed);
+    checks::CheckResult result;
+    Figure f{"curvature", fmt::format("curvature ({} rows, up to {} Lanczos steps)", sample.rows(), c.max_iterations)};
+    f.time = TimeRuns(runs, [&] { result = checks::RunCurvature(inputs.last, sample, inputs.baseline_loss, c); });
+    add(f);
+    fmt::print("    curvature detail: {}\n", result.detail.dump());
+    checks::LayerDegeneracyOptions ld = defaults.layer_degeneracy;
+    ld.block_rows = defaults.block_rows;
+    Figure g{"layer_degeneracy", "layer-degeneracy"};
+    g.time = TimeRuns(runs, [&] { Consume(checks::RunLayerDegeneracy(inputs.last, &inputs.first, data, ld).statistic); });
+    add(g);
+    Figure h{"two_way_diversity", "two-way-diversity"};
+    h.time = TimeRuns(runs, [&] {
+      Consume(checks::RunTwoWayDiversity(inputs.last, &inputs.first, defaults.two_way_diversity).statistic);
+    });
+    add(h);
+  }
   if (want("audit")) {
     Figure f{"run_audit", "RunAudit, default options"};
     f.threads = defaults.threads;
@@ -246,6 +287,21 @@ int Run(const BenchArgs& args) {
     }
     add(f);
     fmt::print("    verdict {} at step {}\n", audit::VerdictToString(report->verdict), report->step);
+    audit::AuditOptions single = defaults;
+    single.precision = model::Precision::kFloat32;
+    std::optional<audit::AuditReport> r32;
+    Figure g{"run_audit_f32", "RunAudit, --precision float32"};
+    g.threads = defaults.threads;
+    g.time = TimeRuns(runs, [&] { r32 = audit::RunAudit(run, single); });
+    add(g);
+    fmt::print("    verdict {} at step {}; {} of {} snapshots recomputed in double\n", audit::VerdictToString(r32->verdict),
+               r32->step, r32->trajectory.recomputed_in_double, r32->trajectory.points.size());
+    audit::AuditOptions judged = defaults;
+    judged.all_layer_gradients = false;
+    Figure h{"run_audit_judged", "RunAudit, --judged-layer-only"};
+    h.threads = defaults.threads;
+    h.time = TimeRuns(runs, [&] { Consume(audit::RunAudit(run, judged).last_loss); });
+    add(h);
   }
   if (want("process")) {
     const std::string command = fmt::format("{} audit {} >/dev/null 2>&1", Quote(args.cli), Quote(work.run.string()));
@@ -254,6 +310,11 @@ int Run(const BenchArgs& args) {
     f.time = TimeRuns(runs, [&] { status = RunProcess(command); });
     if (status > 3) raise(ExitCode::kBadData, "`{}` exited with {}", command, status);
     add(f);
+    const std::string single = fmt::format("{} audit {} --precision float32 >/dev/null 2>&1", Quote(args.cli), Quote(work.run.string()));
+    Figure g{"process_f32", "plaudit audit --precision float32, whole process"};
+    g.time = TimeRuns(runs, [&] { status = RunProcess(single); });
+    if (status > 3) raise(ExitCode::kBadData, "`{}` exited with {}", single, status);
+    add(g);
   }
   std::vector<Figure> training;
   if (want("train")) {
@@ -300,6 +361,10 @@ int Run(const BenchArgs& args) {
   if (const Figure* a = find("run_audit")) {
     fmt::print("whole audit (RunAudit, defaults): {} median; target < 8 s\n", Seconds(a->time.median));
   }
+  if (const Figure* g = find("gradient_memory_f32"); g != nullptr && gemm.measured()) {
+    fmt::print("float32 gradient pass attains {:.3g} GFLOP/s = {:.0f}% of the 1-thread float GEMM ({:.3g} GFLOP/s)\n",
+               g->gflops(), 100.0 * g->gflops() * 1e9 / gemm.sgl1, gemm.sgl1 * 1e-9);
+  }
   if (const Figure* s = find("snapshot"); s != nullptr && find("trajectory_1") != nullptr) {
     fmt::print("{} x one snapshot = {} against the whole trajectory's {}: cost linear in snapshots\n", snapshots,
                Seconds(static_cast<double>(snapshots) * s->time.median), Seconds(find("trajectory_1")->time.median));
@@ -339,8 +404,8 @@ int main(int argc, char** argv) {
   app.add_option("--runs", args.runs, "Timed runs per figure (median, min and max are printed)")
       ->check(CLI::PositiveNumber)->capture_default_str();
   app.add_option("--gemm-size", args.gemm_size, "Size n of the n^3 reference GEMM")->check(CLI::PositiveNumber)->capture_default_str();
-  app.add_option("--only", args.only, "Measure only these groups: gemm, gradient, snapshot, spread, residual, plateau, "
-                                      "audit, process, train (bounds need gemm)")->delimiter(',');
+  app.add_option("--only", args.only, "Measure only these groups: gemm, gradient, float32, snapshot, spread, residual, "
+                                      "plateau, deep, audit, process, train (bounds need gemm)")->delimiter(',');
   app.add_option("--cli", args.cli, "The plaudit executable timed as a process")->capture_default_str();
   CLI11_PARSE(app, argc, argv);
   try {
