@@ -188,6 +188,21 @@ TEST_CASE("audit --format json writes the contract's report and exits with its v
   // The text report reaches the same verdict: same exit code.
   CHECK(RunPlaudit({"audit", run.string()}).exit_code == r.exit_code);
 
+  // --precision float32 marks its points; the verdict and the last point are the double ones.
+  const ProcessResult f = RunPlaudit({"audit", run.string(), "--format", "json", "--precision", "float32"});
+  const json fj = ParseJson(f);
+  CHECK(f.exit_code == r.exit_code);
+  CHECK(fj.at("verdict") == j.at("verdict"));
+  CHECK(fj.at("trajectory").at("precision") == "float32");
+  json last_point = j.at("trajectory").at("points").back();
+  last_point["precision"] = "double";
+  CHECK(fj.at("trajectory").at("points").back() == last_point);
+  const std::string text = RunPlaudit({"audit", run.string(), "--precision", "float32"}).out;
+  CHECK(text.find("gradient pass in float32") != std::string::npos);
+  const ProcessResult half = RunPlaudit({"audit", run.string(), "--precision", "half"});
+  CHECK(half.exit_code == 64);
+  CheckOneLineError(half, {"--precision"});
+
   // A last snapshot with a non-finite weight: verdict `diverged`, exit 3.
   plaudit::io::RunDir rd(run);
   auto arrays = rd.ReadSnapshot(rd.Snapshots().back());
