@@ -256,7 +256,10 @@ int Run(const BenchArgs& args) {
     Figure f{"curvature", fmt::format("curvature ({} rows, up to {} Lanczos steps)", sample.rows(), c.max_iterations)};
     f.time = TimeRuns(runs, [&] { result = checks::RunCurvature(inputs.last, sample, inputs.baseline_loss, c); });
     add(f);
-    fmt::print("    curvature detail: {}\n", result.detail.dump());
+    const auto& d = result.detail;
+    fmt::print("    curvature: {} Hessian-vector products, {} loss evaluations, ratio {}, saddle {}\n",
+               d.value("hessian_vector_products", 0), d.value("loss_evaluations", 0),
+               d.contains("ratio") ? d["ratio"].dump() : "n/a", d.contains("saddle") ? d["saddle"].dump() : "n/a");
     checks::LayerDegeneracyOptions ld = defaults.layer_degeneracy;
     ld.block_rows = defaults.block_rows;
     Figure g{"layer_degeneracy", "layer-degeneracy"};
@@ -268,11 +271,14 @@ int Run(const BenchArgs& args) {
     });
     add(h);
   }
+  // The audit's own default: 0 = every hardware thread.
+  const int audit_threads =
+      defaults.threads > 0 ? defaults.threads : static_cast<int>(std::max(1u, std::thread::hardware_concurrency()));
   if (want("audit")) {
     Figure f{"run_audit", "RunAudit, default options"};
-    f.threads = defaults.threads;
+    f.threads = audit_threads;
     f.time = TimeRuns(runs, [&] { Consume(audit::RunAudit(run, defaults).last_loss); });
-    // Trajectory on defaults.threads threads, support-spread on one, residual-fit's folds on the
+    // Trajectory on audit_threads threads, support-spread on one, residual-fit's folds on the
     // hardware threads: each part is bounded at its own rate.
     const FlopCount trajectory{pass_flops, 0.0};
     const FlopCount spread = SupportSpreadFlops(inputs.last.layers.front().fan_out(), spread_dims, defaults.support_spread);
@@ -283,7 +289,7 @@ int Run(const BenchArgs& args) {
     f.flops = all;
     if (gemm.measured()) {
       const int rf_threads = static_cast<int>(std::max(1u, std::thread::hardware_concurrency()));
-      f.bound = gemm.Bound(trajectory, defaults.threads) + gemm.Bound(spread, 1) + gemm.Bound(residual, rf_threads);
+      f.bound = gemm.Bound(trajectory, audit_threads) + gemm.Bound(spread, 1) + gemm.Bound(residual, rf_threads);
     }
     add(f);
     fmt::print("    verdict {} at step {}\n", audit::VerdictToString(report->verdict), report->step);
@@ -291,7 +297,7 @@ int Run(const BenchArgs& args) {
     single.precision = model::Precision::kFloat32;
     std::optional<audit::AuditReport> r32;
     Figure g{"run_audit_f32", "RunAudit, --precision float32"};
-    g.threads = defaults.threads;
+    g.threads = audit_threads;
     g.time = TimeRuns(runs, [&] { r32 = audit::RunAudit(run, single); });
     add(g);
     fmt::print("    verdict {} at step {}; {} of {} snapshots recomputed in double\n", audit::VerdictToString(r32->verdict),
@@ -299,7 +305,7 @@ int Run(const BenchArgs& args) {
     audit::AuditOptions judged = defaults;
     judged.all_layer_gradients = false;
     Figure h{"run_audit_judged", "RunAudit, --judged-layer-only"};
-    h.threads = defaults.threads;
+    h.threads = audit_threads;
     h.time = TimeRuns(runs, [&] { Consume(audit::RunAudit(run, judged).last_loss); });
     add(h);
   }

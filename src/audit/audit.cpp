@@ -2,6 +2,7 @@
 
 #include <cmath>
 #include <optional>
+#include <thread>
 
 #include "plaudit/audit/decide.h"
 #include "plaudit/core/error.h"
@@ -58,7 +59,7 @@ Trajectory TrajectoryForLayer(const io::RunDir& run, const Inputs& in, const Aud
   layer = checks::ResolveGradientLayer(options.gradient_decay, depth, ManifestFrozen(run.manifest()));
   TrajectoryOptions t;
   t.block_rows = options.block_rows;
-  t.threads = options.threads;
+  t.threads = options.threads > 0 ? options.threads : static_cast<int>(std::max(1u, std::thread::hardware_concurrency()));
   t.lowest_grad_layer = options.all_layer_gradients ? 0 : layer;
   t.precision = options.precision;
   t.refine_below = options.float32_refine_below;
@@ -170,7 +171,7 @@ bool AuditOptions::IsValid(std::string* why) const {
   };
   if (max_rows < 0) return bad(fmt::format("max-rows is {}, must be >= 0", max_rows));
   if (curvature_rows < 0) return bad(fmt::format("curvature-rows is {}, must be >= 0", curvature_rows));
-  if (threads < 1) return bad(fmt::format("threads is {}, must be >= 1", threads));
+  if (threads < 0) return bad(fmt::format("threads is {}, must be >= 0 (0 = every hardware thread)", threads));
   if (block_rows < 1) return bad(fmt::format("block-rows is {}, must be >= 1", block_rows));
   if (!(float32_refine_below > 0.0 && float32_refine_below <= 1.0)) {
     return bad(fmt::format("float32-refine-below is {}, must be in (0, 1]", float32_refine_below));

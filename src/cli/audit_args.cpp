@@ -46,7 +46,8 @@ void AddAuditArgs(CLI::App& app, AuditArgs& args) {
   AddFormatOption(app, args.format, {"text", "json"});
   auto& o = args.options;
   app.add_option("--seed", o.seed, "Seed for every random choice (row subsample, probes, features, permutations)")->capture_default_str();
-  app.add_option("--threads", o.threads, "Snapshots evaluated in parallel")->check(CLI::Range(1, 256))->capture_default_str();
+  app.add_option("--threads", o.threads, "Snapshots evaluated in parallel (0 = every hardware thread)")
+      ->check(CLI::Range(0, 256))->capture_default_str();
   app.add_option("--max-rows", o.max_rows, "Audit rows: subsample data.npz to at most this many (0 = all)")
       ->check(CLI::NonNegativeNumber)->capture_default_str();
   app.add_option("--block-rows", o.block_rows, "Rows per block of the forward/backward pass")->check(CLI::PositiveNumber)->capture_default_str();

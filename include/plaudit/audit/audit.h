@@ -40,7 +40,8 @@ struct AuditOptions {
   // Audit rows: data.npz subsampled to at most this many rows (seeded); 0 = all rows.
   Eigen::Index max_rows = 8192;
   std::uint64_t seed = 0;        // one seed for every random choice of the audit
-  int threads = 1;               // snapshots evaluated in parallel; the report does not depend on it
+  // Snapshots evaluated in parallel; 0 = every hardware thread. The report does not depend on it.
+  int threads = 0;
   Eigen::Index block_rows = 1024;
   // Global outright when the last loss <= global_loss_ratio * L0 (an interpolating optimum).
   double global_loss_ratio = 1e-6;
