@@ -23,6 +23,7 @@
 #include "plaudit/checks/gradient_decay.h"
 #include "plaudit/checks/layer_degeneracy.h"
 #include "plaudit/checks/two_way_diversity.h"
+#include "plaudit/core/allocator.h"
 #include "plaudit/core/error.h"
 #include "plaudit/model/evaluate.h"
 #include "plaudit/train/trainer.h"
@@ -403,6 +404,7 @@ int Run(const BenchArgs& args) {
 }  // namespace plaudit::bench
 
 int main(int argc, char** argv) {
+  plaudit::KeepFreedMemoryForReuse();
   plaudit::bench::BenchArgs args;
   CLI::App app{"plaudit_bench: per-component wall times of the audit against the machine's GEMM rate"};
   app.add_flag("--scale", args.scale, "Use the 4x workload (d=256, widths 2048, N=32768) instead of the default");

@@ -6,9 +6,11 @@
 
 #include "cli/commands.h"
 #include "cli/memory_limit.h"
+#include "plaudit/core/allocator.h"
 #include "plaudit/core/error.h"
 
 int main(int argc, char** argv) {
+  plaudit::KeepFreedMemoryForReuse();
   CLI::App app{"plaudit: is this loss plateau a spurious stationary point, a global one, or still moving?"};
   // One line per error, like every other bad input. At most one subcommand: an unknown word is
   // then reported by name (with a minimum, CLI11 only says a subcommand is required).
