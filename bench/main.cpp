@@ -170,18 +170,24 @@ int Run(const BenchArgs& args) {
              snapshots, rows, layer + 1, pass_flops * 1e-9, 100.0 * forward_share);
   std::fflush(stdout);
 
-  if (want("gradient")) {
+  // The gradient pass alone, every snapshot's network already in memory, in one precision.
+  auto in_memory_pass = [&](model::Precision precision, const std::string& key, const std::string& label) {
     std::vector<model::Network> nets;
     for (const auto& ref : inputs.snaps) nets.push_back(model::NetworkFromArrays(run.manifest(), run.ReadSnapshot(ref), ref.path.string()));
     model::EvalOptions eval;
     eval.block_rows = defaults.block_rows;
     eval.lowest_grad_layer = layer;
-    Figure mem{"gradient_memory", fmt::format("gradient pass, {} nets in memory", snapshots)};
-    mem.time = TimeRuns(runs, [&] {
+    eval.precision = precision;
+    Figure f{key, fmt::format("{}, {} nets in memory", label, snapshots)};
+    f.time = TimeRuns(runs, [&] {
       for (const auto& net : nets) Consume(model::Evaluate(net, data, eval).loss);
     });
-    mem.flops = FlopCount{pass_flops, 0.0};
-    add(bounded(mem));
+    const bool single = precision == model::Precision::kFloat32;
+    f.flops = FlopCount{single ? 0.0 : pass_flops, single ? pass_flops : 0.0};
+    add(bounded(f));
+  };
+  if (want("gradient")) {
+    in_memory_pass(model::Precision::kDouble, "gradient_memory", "gradient pass");
     for (int threads : {1, 2}) {
       audit::TrajectoryOptions t;
       t.block_rows = defaults.block_rows;
@@ -196,18 +202,7 @@ int Run(const BenchArgs& args) {
   }
   if (want("float32")) {
     // The same pass in single precision (audit --precision float32 before its double refinement).
-    std::vector<model::Network> nets;
-    for (const auto& ref : inputs.snaps) nets.push_back(model::NetworkFromArrays(run.manifest(), run.ReadSnapshot(ref), ref.path.string()));
-    model::EvalOptions eval;
-    eval.block_rows = defaults.block_rows;
-    eval.lowest_grad_layer = layer;
-    eval.precision = model::Precision::kFloat32;
-    Figure f{"gradient_memory_f32", fmt::format("gradient pass in float32, {} nets in memory", snapshots)};
-    f.time = TimeRuns(runs, [&] {
-      for (const auto& net : nets) Consume(model::Evaluate(net, data, eval).loss);
-    });
-    f.flops = FlopCount{0.0, pass_flops};
-    add(bounded(f));
+    in_memory_pass(model::Precision::kFloat32, "gradient_memory_f32", "gradient pass in float32");
   }
   if (want("snapshot")) {
     audit::TrajectoryOptions t;
