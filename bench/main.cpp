@@ -24,6 +24,7 @@
 #include "plaudit/checks/layer_degeneracy.h"
 #include "plaudit/checks/two_way_diversity.h"
 #include "plaudit/core/allocator.h"
+#include "plaudit/core/threads.h"
 #include "plaudit/core/error.h"
 #include "plaudit/model/evaluate.h"
 #include "plaudit/train/trainer.h"
@@ -227,7 +228,7 @@ int Run(const BenchArgs& args) {
     const auto& o = defaults.residual_fit;
     Figure f{"residual_fit", fmt::format("residual-fit (M={}, {} folds, {} ridge, B={})", o.features, o.folds, o.ridge_grid,
                                          o.permutations)};
-    f.threads = o.threads > 0 ? o.threads : static_cast<int>(std::max(1u, std::thread::hardware_concurrency()));
+    f.threads = ThreadsFor(o.threads);
     f.time = TimeRuns(runs, [&] { Consume(checks::RunResidualFit(inputs.last, data, inputs.baseline_loss, o).statistic); });
     f.flops = ResidualFitFlops(inputs.last, rows, o);
     add(bounded(f));
@@ -268,8 +269,7 @@ int Run(const BenchArgs& args) {
     add(h);
   }
   // The audit's own default: 0 = every hardware thread.
-  const int audit_threads =
-      defaults.threads > 0 ? defaults.threads : static_cast<int>(std::max(1u, std::thread::hardware_concurrency()));
+  const int audit_threads = ThreadsFor(defaults.threads);
   if (want("audit")) {
     Figure f{"run_audit", "RunAudit, default options"};
     f.threads = audit_threads;
@@ -284,7 +284,7 @@ int Run(const BenchArgs& args) {
     all += residual;
     f.flops = all;
     if (gemm.measured()) {
-      const int rf_threads = static_cast<int>(std::max(1u, std::thread::hardware_concurrency()));
+      const int rf_threads = ThreadsFor(0);
       f.bound = gemm.Bound(trajectory, audit_threads) + gemm.Bound(spread, 1) + gemm.Bound(residual, rf_threads);
     }
     add(f);

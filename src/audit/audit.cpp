@@ -2,10 +2,10 @@
 
 #include <cmath>
 #include <optional>
-#include <thread>
 
 #include "plaudit/audit/decide.h"
 #include "plaudit/core/error.h"
+#include "plaudit/core/threads.h"
 #include "plaudit/model/dataset.h"
 #include "plaudit/model/network.h"
 
@@ -59,7 +59,7 @@ Trajectory TrajectoryForLayer(const io::RunDir& run, const Inputs& in, const Aud
   layer = checks::ResolveGradientLayer(options.gradient_decay, depth, ManifestFrozen(run.manifest()));
   TrajectoryOptions t;
   t.block_rows = options.block_rows;
-  t.threads = options.threads > 0 ? options.threads : static_cast<int>(std::max(1u, std::thread::hardware_concurrency()));
+  t.threads = ThreadsFor(options.threads);
   t.lowest_grad_layer = options.all_layer_gradients ? 0 : layer;
   t.precision = options.precision;
   t.refine_below = options.float32_refine_below;

@@ -6,7 +6,6 @@
 #include <numeric>
 #include <random>
 #include <stdexcept>
-#include <thread>
 #include <vector>
 
 #include <Eigen/QR>
@@ -14,6 +13,7 @@
 #include <nlopt.hpp>
 
 #include "plaudit/core/error.h"
+#include "plaudit/core/threads.h"
 #include "plaudit/model/evaluate.h"
 #include "plaudit/model/loss.h"
 #include "plaudit/stats/folds.h"
@@ -590,9 +590,7 @@ nlohmann::json BestNeuronJson(const FoundUnit& unit, const Problem& p, const mod
 // ---------------------------------------------------------------- assembly
 
 int ResolveThreads(int requested, int folds) {
-  int threads = requested;
-  if (threads == 0) threads = static_cast<int>(std::max(1u, std::thread::hardware_concurrency()));
-  return std::max(1, std::min(threads, folds + 1));
+  return std::max(1, std::min(ThreadsFor(requested), folds + 1));
 }
 
 std::vector<RowList> Permutations(Index n, int count, std::uint64_t seed) {
