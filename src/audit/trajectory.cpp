@@ -106,8 +106,8 @@ void EvaluateInParallel(const io::RunDir& run, const std::vector<io::SnapshotRef
   if (failure) std::rethrow_exception(failure);
 }
 
-// The float32 points to evaluate again in double: the last finite one, and those whose gradient
-// sup in any computed layer is at most refine_below x that layer's largest sup over the run.
+// The float32 points to evaluate again in double: those whose gradient sup in any computed layer
+// is at most refine_below x that layer's largest sup over the run (the last is already double).
 std::vector<std::size_t> PointsToRefine(const std::vector<SnapshotPoint>& points, double refine_below) {
   std::vector<double> peak;
   for (const auto& p : points) {
@@ -118,8 +118,8 @@ std::vector<std::size_t> PointsToRefine(const std::vector<SnapshotPoint>& points
   std::vector<std::size_t> redo;
   for (std::size_t i = 0; i < points.size(); ++i) {
     const auto& p = points[i];
-    if (!p.finite) continue;
-    bool low = i + 1 == points.size();
+    if (!p.finite || !p.float32) continue;
+    bool low = false;
     for (std::size_t l = 0; l < p.grad.size() && !low; ++l) {
       low = peak[l] > 0.0 && p.grad[l].sup <= refine_below * peak[l];
     }
@@ -196,18 +196,23 @@ Trajectory ComputeTrajectory(const io::RunDir& run, const std::vector<io::Snapsh
 
   // Snapshot 0 is kept as the reference for "unchanged"; every other network is dropped as soon
   // as it is compared, so memory holds at most one snapshot per thread.
-  SnapshotWork first = Work(run, snaps.front(), data, options);
+  // float32: the last snapshot is always wanted in double, so it is evaluated so at once, the rest
+  // in float32, and then again in double those whose gradient fell low.
+  const bool split = options.precision == model::Precision::kFloat32 && data != nullptr;
+  TrajectoryOptions exact = options;
+  exact.precision = model::Precision::kDouble;
+  const std::size_t last = snaps.size() - 1;
+  SnapshotWork first = Work(run, snaps.front(), data, split && last == 0 ? exact : options);
   std::vector<SnapshotPoint> points(snaps.size());
   std::vector<std::vector<bool>> same(snaps.size());
   points[0] = first.point;
-  EvaluateInParallel(run, snaps, data, options, IndexRange(1, snaps.size()), first, points, same);
-  if (options.precision == model::Precision::kFloat32 && data != nullptr) {
-    TrajectoryOptions exact = options;
-    exact.precision = model::Precision::kDouble;
+  EvaluateInParallel(run, snaps, data, options, IndexRange(1, split ? last : snaps.size()), first, points, same);
+  if (split) {
+    if (last > 0) EvaluateInParallel(run, snaps, data, exact, {last}, first, points, same);
     const std::vector<std::size_t> redo = PointsToRefine(points, options.refine_below);
     EvaluateInParallel(run, snaps, data, exact, redo, first, points, same);
     traj.precision = model::Precision::kFloat32;
-    traj.recomputed_in_double = static_cast<int>(redo.size());
+    traj.recomputed_in_double = static_cast<int>(redo.size()) + 1;
   }
 
   if (snaps.size() >= 2) {

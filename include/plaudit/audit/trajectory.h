@@ -41,7 +41,7 @@ struct Trajectory {
   std::vector<bool> frozen;           // per layer: marked trainable=false or unchanged throughout
   int lowest_grad_layer = 0;
   model::Precision precision = model::Precision::kDouble;
-  int recomputed_in_double = 0;       // float32 only: points evaluated again in double
+  int recomputed_in_double = 0;       // float32 only: points evaluated in double (the last and the refined)
 };
 
 struct TrajectoryOptions {
