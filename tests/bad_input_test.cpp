@@ -29,6 +29,7 @@
 #include "plaudit/train/teacher.h"
 #include "plaudit/train/trainer.h"
 #include "support/cli_process.h"
+#include "support/scenario.h"
 #include "support/temp_dir.h"
 
 namespace {
@@ -59,13 +60,7 @@ plaudit::train::TrainOptions SmallTrainOptions(plaudit::model::Loss loss) {
 }
 
 plaudit::model::Dataset SmallTeacherData() {
-  plaudit::train::TeacherOptions t;
-  t.kind = plaudit::train::TeacherKind::kReluSum;
-  t.dim = 3;
-  t.width = 2;
-  t.rows = 64;
-  t.seed = 5;
-  return plaudit::train::MakeTeacherData(t).data;
+  return plaudit::testing::TeacherRows(plaudit::train::TeacherKind::kReluSum, 3, 2, 64, 5);
 }
 
 const fs::path& SquaredRun() {

@@ -11,6 +11,7 @@
 #include "plaudit/train/teacher.h"
 #include "plaudit/train/trainer.h"
 #include "support/cli_process.h"
+#include "support/scenario.h"
 #include "support/temp_dir.h"
 
 namespace {
@@ -27,12 +28,6 @@ CliResult AuditJson(const std::filesystem::path& run, const std::string& seed, c
 }  // namespace
 
 TEST_CASE("audit --format json is byte-identical across invocations and thread counts", "[determinism][cli]") {
-  plaudit::train::TeacherOptions t;
-  t.kind = plaudit::train::TeacherKind::kReluSum;
-  t.dim = 4;
-  t.width = 3;
-  t.rows = 300;
-  t.seed = 21;
   plaudit::train::TrainOptions o;
   o.widths = {10};
   o.activation = plaudit::model::Activation::kTanh;
@@ -41,7 +36,7 @@ TEST_CASE("audit --format json is byte-identical across invocations and thread c
   o.seed = 4;
   plaudit::testing::TempDir dir("determinism");
   const auto run = dir / "run";
-  plaudit::train::Train(plaudit::train::MakeTeacherData(t).data, o, run);
+  plaudit::train::Train(plaudit::testing::TeacherRows(plaudit::train::TeacherKind::kReluSum, 4, 3, 300, 21), o, run);
 
   const CliResult first = AuditJson(run, "7", "1");
   INFO("stderr: " << first.err);

@@ -17,7 +17,6 @@
 #include "plaudit/audit/audit.h"
 #include "plaudit/model/evaluate.h"
 #include "plaudit/report/json_report.h"
-#include "plaudit/train/teacher.h"
 #include "plaudit/train/trainer.h"
 #include "support/scenario.h"
 #include "support/temp_dir.h"
@@ -112,12 +111,6 @@ TEST_CASE("at a least-squares solution float32 reports its own rounding, double 
 }
 
 TEST_CASE("audit in float32: same verdict, decayed points and the last one in double", "[audit][float32]") {
-  plaudit::train::TeacherOptions t;
-  t.kind = plaudit::train::TeacherKind::kReluSum;
-  t.dim = 6;
-  t.width = 4;
-  t.rows = 1500;
-  t.seed = 12;
   plaudit::train::TrainOptions o;
   o.widths = {48};
   o.activation = Activation::kTanh;
@@ -126,7 +119,7 @@ TEST_CASE("audit in float32: same verdict, decayed points and the last one in do
   o.seed = 3;
   plaudit::testing::TempDir dir("float32-audit");
   const auto run = dir / "run";
-  plaudit::train::Train(plaudit::train::MakeTeacherData(t).data, o, run);
+  plaudit::train::Train(plaudit::testing::TeacherRows(plaudit::train::TeacherKind::kReluSum, 6, 4, 1500, 12), o, run);
 
   plaudit::audit::AuditOptions exact;
   exact.seed = 9;

@@ -30,6 +30,7 @@
 #include "plaudit/model/network.h"
 #include "plaudit/train/teacher.h"
 #include "plaudit/train/trainer.h"
+#include "support/scenario.h"
 #include "support/temp_dir.h"
 
 namespace {
@@ -64,13 +65,7 @@ constexpr double kMinMove = 0.1;  // measured 0.21-1.31: every layer moves by O(
 // Planted smooth teacher (train/teacher.h): y = sum_i a_i tanh(w_i . x + b_i), d = 4, 2 neurons,
 // 32 rows, no noise. Few rows keep 1024-wide runs cheap; the limit holds for any fixed data set.
 plaudit::model::Dataset TeacherData() {
-  plaudit::train::TeacherOptions t;
-  t.kind = plaudit::train::TeacherKind::kSmooth;
-  t.dim = 4;
-  t.width = 2;
-  t.rows = 32;
-  t.seed = 7;
-  return plaudit::train::MakeTeacherData(t).data;
+  return plaudit::testing::TeacherRows(plaudit::train::TeacherKind::kSmooth, 4, 2, 32, 7);
 }
 
 struct Trajectory {

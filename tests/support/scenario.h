@@ -15,9 +15,22 @@
 #include "plaudit/io/npz.h"
 #include "plaudit/io/run_dir.h"
 #include "plaudit/model/network.h"
+#include "plaudit/train/teacher.h"
 #include "plaudit/train/trainer.h"
 
 namespace plaudit::testing {
+
+// Noise-free rows of a planted teacher (train/teacher.h) of this kind, size and seed.
+inline model::Dataset TeacherRows(train::TeacherKind kind, Eigen::Index dim, Eigen::Index width, Eigen::Index rows,
+                                  std::uint64_t seed) {
+  train::TeacherOptions t;
+  t.kind = kind;
+  t.dim = dim;
+  t.width = width;
+  t.rows = rows;
+  t.seed = seed;
+  return train::MakeTeacherData(t).data;
+}
 
 struct DescentRun {
   std::int64_t final_step = 0;
